@@ -1,0 +1,102 @@
+"""The machine-readable report of a run: one JSON document, strictly valid, deterministic.
+
+Missing numbers (NaN) and infinities become ``null``; keys keep a fixed order, so the
+same run always gives the same bytes.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from enum import Enum
+from pathlib import Path, PurePath
+from typing import Any
+
+import numpy as np
+
+from sheetcycle.io.atomic import atomic_output, write_error
+from sheetcycle.model import Column, Flag, RowResult, RunResult, Severity, Table
+
+__all__ = ["report_dict", "report_text", "to_json_value", "write_json"]
+
+
+def to_json_value(x: Any) -> Any:
+    """Plain JSON value for ``x``: non-finite floats → None, numpy/Path/Enum → plain types."""
+    if x is None or isinstance(x, bool | str):
+        return x
+    if isinstance(x, Enum):
+        return to_json_value(x.value)
+    if isinstance(x, int | np.integer):
+        return int(x)
+    if isinstance(x, float | np.floating):
+        return float(x) if math.isfinite(x) else None
+    if isinstance(x, dict):
+        return {str(k): to_json_value(v) for k, v in x.items()}
+    if isinstance(x, list | tuple | np.ndarray):
+        return [to_json_value(v) for v in x]
+    if isinstance(x, set | frozenset):
+        return sorted((to_json_value(v) for v in x), key=repr)
+    if isinstance(x, PurePath):
+        return str(x)
+    return str(x)
+
+
+def _flag(f: Flag, *, with_sheet: bool) -> dict[str, Any]:
+    d: dict[str, Any] = {"code": f.code, "severity": Severity(f.severity).value}
+    if with_sheet:
+        d["sheet"] = f.sheet
+    d["cell"] = f.cell
+    d["message"] = f.message
+    return d
+
+
+def _column(c: Column) -> dict[str, Any]:
+    return {"header": c.header, "quantity": c.quantity, "unit": c.unit}
+
+
+def _table(t: Table) -> dict[str, Any]:
+    return {
+        "sheet": t.sheet,
+        "header_row": t.header_row,
+        "columns": [_column(c) for c in t.columns],
+    }
+
+
+def _row(r: RowResult) -> dict[str, Any]:
+    return {
+        "sheet": r.sheet,
+        "row": r.row,
+        "formula": r.formula,
+        "values": {name: v.as_dict() for name, v in r.values.items()},
+        "flags": [_flag(f, with_sheet=False) for f in r.flags],
+    }
+
+
+def report_dict(run: RunResult) -> dict[str, Any]:
+    """The report as plain JSON-ready values, keys in their documented order."""
+    doc = {
+        "version": run.version,
+        "input": run.input,
+        "settings": run.settings,
+        "tables": [_table(t) for t in run.tables],
+        "rows": [_row(r) for r in run.rows],
+        "references": [ref.as_dict() for ref in run.references],
+        "file_flags": [_flag(f, with_sheet=True) for f in run.file_flags],
+    }
+    return to_json_value(doc)  # type: ignore[no-any-return]
+
+
+def report_text(run: RunResult) -> str:
+    """The report as JSON text (UTF-8 safe, NaN-free, indented by one space)."""
+    return json.dumps(report_dict(run), ensure_ascii=False, indent=1, allow_nan=False) + "\n"
+
+
+def write_json(run: RunResult, path: Path, *, force: bool = False) -> None:
+    """Write the report to ``path`` atomically; refuses to overwrite unless ``force``."""
+    text = report_text(run)
+    inputs = [Path(run.input)] if run.input else []
+    with atomic_output(Path(path), force=force, inputs=inputs) as tmp:
+        try:
+            tmp.write_text(text, encoding="utf-8", newline="\n")
+        except OSError as exc:
+            raise write_error(f"cannot write the report ({exc.strerror})", file=str(path)) from exc
