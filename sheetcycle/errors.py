@@ -69,25 +69,25 @@ class SheetcycleError(Exception):
         return f"{where}: {text}" if where else text
 
 
-class UnitError(ValueError, SheetcycleError):
+class UnitError(SheetcycleError, ValueError):
     """A unit text that cannot be parsed, or a unit of the wrong dimension."""
 
 
-class FormulaSyntaxError(ValueError, SheetcycleError):
+class FormulaSyntaxError(SheetcycleError, ValueError):
     """A chemical formula or reaction equation that cannot be parsed."""
 
 
-class ChemistryError(ValueError, SheetcycleError):
+class ChemistryError(SheetcycleError, ValueError):
     """A formula that parses but cannot be assigned ions, balanced, or looked up."""
 
 
-class ReadError(OSError, SheetcycleError):
+class ReadError(SheetcycleError, OSError):
     """A file that cannot be read as a workbook (or is refused as unsafe)."""
 
 
-class WriteError(OSError, SheetcycleError):
+class WriteError(SheetcycleError, OSError):
     """An output that cannot be written; nothing partial is left behind."""
 
 
-class UsageError(ValueError, SheetcycleError):
+class UsageError(SheetcycleError, ValueError):
     """Bad options or arguments from the caller (exit code 2 on the command line)."""
