@@ -1,0 +1,5 @@
+"""python -m sheetcycle"""
+
+from sheetcycle.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,183 @@
+"""Command line: parsing arguments and printing only; the work is in sheetcycle.api.
+
+Exit codes: 0 when every file was processed (flags or not), 1 when a file could not be read
+or written (one plain line each, no traceback, nothing partial left), 2 on a usage error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import glob
+import os
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+from sheetcycle import __version__
+from sheetcycle.errors import SheetcycleError, UsageError
+
+__all__ = ["main"]
+
+WORKBOOK_SUFFIXES = (".xlsx", ".xlsm", ".xls", ".ods", ".csv")
+
+
+def _column_spec(text: str):  # type: ignore[no-untyped-def]
+    """'[SHEET:]COL=QUANTITY[:UNIT]' → ColumnOverride (COL a letter or header text)."""
+    from sheetcycle.io.tables import ColumnOverride
+
+    if "=" not in text:
+        raise argparse.ArgumentTypeError(
+            f"expected [SHEET:]COLUMN=QUANTITY[:UNIT], e.g. 'D=formation_enthalpy:kcal/mol', "
+            f"found {text!r}")
+    left, right = text.split("=", 1)
+    sheet = None
+    if ":" in left:
+        sheet, left = left.split(":", 1)
+    quantity, _, unit = right.partition(":")
+    return ColumnOverride(column=left.strip(), quantity=quantity.strip() or None,
+                          unit=unit.strip() or None, sheet=sheet)
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="sheetcycle",
+        description="Close Born-Haber cycles in thermochemistry workbooks and report the results.")
+    p.add_argument("--version", action="version", version=f"sheetcycle {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    def common(sp: argparse.ArgumentParser) -> None:
+        sp.add_argument("--column", action="append", type=_column_spec, default=[],
+                        metavar="[SHEET:]COL=QUANTITY[:UNIT]",
+                        help="say what a column holds, overriding its header "
+                             "(COL is a letter or the header text; QUANTITY 'ignore' drops it)")
+        sp.add_argument("--columns", metavar="FILE",
+                        help="a JSON file of column overrides (see docs/usage.md)")
+
+    a = sub.add_parser("annotate", help="compute every cycle and write the results")
+    a.add_argument("inputs", nargs="+", metavar="FILE", help="workbooks (.xlsx .xlsm .xls .ods .csv)")
+    a.add_argument("-o", "--output", metavar="PATH",
+                   help="results workbook (.xlsx); with several inputs, a folder")
+    a.add_argument("--json", metavar="PATH", dest="json_path",
+                   help="machine-readable report; with several inputs, a folder")
+    a.add_argument("--tolerance", type=float, default=10.0, metavar="KJ",
+                   help="closure residuals below max(2σ, KJ) pass (default 10 kJ/mol)")
+    a.add_argument("--reference", action="append", default=[], metavar="CSV",
+                   help="reference values overriding the built-in ones "
+                        "(element,quantity,index,value,unit,uncertainty,source)")
+    a.add_argument("--force", action="store_true", help="overwrite existing outputs")
+    a.add_argument("-q", "--quiet", action="store_true", help="print only errors")
+    common(a)
+
+    i = sub.add_parser("inspect", help="show which tables, columns and units are recognised")
+    i.add_argument("input", metavar="FILE")
+    common(i)
+    return p
+
+
+def _expand(inputs: Sequence[str]) -> list[Path]:
+    out: list[Path] = []
+    for item in inputs:
+        path = Path(item)
+        if path.is_dir():
+            out.extend(sorted(q for q in path.iterdir()
+                              if q.suffix.lower() in WORKBOOK_SUFFIXES and not q.name.startswith(".")))
+        elif any(ch in item for ch in "*?["):
+            out.extend(sorted(Path(g) for g in glob.glob(item)))
+        else:
+            out.append(path)
+    return out
+
+
+def _overrides(args: argparse.Namespace):  # type: ignore[no-untyped-def]
+    from sheetcycle.api import load_column_mapping
+
+    found = list(args.column)
+    if args.columns:
+        found.extend(load_column_mapping(args.columns))
+    return tuple(found)
+
+
+def _summary(run) -> str:  # type: ignore[no-untyped-def]
+    rows = [r for r in run.rows if r.formula]
+    lattice = sum(1 for r in rows if "lattice_enthalpy" in r.values)
+    counts = {"error": 0, "warning": 0, "note": 0}
+    for f in [f for r in run.rows for f in r.flags] + list(run.file_flags):
+        counts[f.severity.value] += 1
+    return (f"{run.input}: {len(rows)} compounds, {lattice} lattice enthalpies; "
+            f"{counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
+
+
+def _target(base: str | None, src: Path, many: bool, suffix: str) -> Path | None:
+    if base is None:
+        return None
+    if many:
+        folder = Path(base)
+        folder.mkdir(parents=True, exist_ok=True)
+        return folder / f"{src.stem}{suffix}"
+    return Path(base)
+
+
+def _annotate(args: argparse.Namespace) -> int:
+    from sheetcycle.api import annotate, load_reference_file
+    from sheetcycle.pipeline import Settings
+
+    if args.tolerance < 0:
+        raise UsageError("--tolerance must not be negative", found=args.tolerance)
+    paths = _expand(args.inputs)
+    if not paths:
+        raise UsageError("no input files found", found=" ".join(args.inputs))
+    extra = []
+    for ref in args.reference:
+        extra.extend(load_reference_file(ref))
+    settings = Settings(tolerance=args.tolerance, column_overrides=_overrides(args),
+                        reference_files=tuple(args.reference), extra_references=tuple(extra))
+    many = len(paths) > 1
+    failed = 0
+    for src in paths:
+        try:
+            run = annotate(src, _target(args.output, src, many, ".results.xlsx"),
+                           json_path=_target(args.json_path, src, many, ".report.json"),
+                           settings=settings, force=args.force)
+        except SheetcycleError as exc:
+            failed += 1
+            print(f"sheetcycle: {exc}", file=sys.stderr)
+            continue
+        if not args.quiet:
+            print(_summary(run))
+    if many and not args.quiet:
+        print(f"{len(paths) - failed} of {len(paths)} files done, {failed} failed")
+    return 1 if failed else 0
+
+
+def _inspect(args: argparse.Namespace) -> int:
+    from sheetcycle.api import inspect
+
+    print(inspect(args.input, column_overrides=_overrides(args)).as_text())
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse prints its own message; keep its exit code (2)
+        return int(exc.code or 0)
+    try:
+        if args.command == "annotate":
+            return _annotate(args)
+        return _inspect(args)
+    except UsageError as exc:
+        print(f"sheetcycle: {exc}", file=sys.stderr)
+        return 2
+    except SheetcycleError as exc:
+        print(f"sheetcycle: {exc}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        return 130
+    except BrokenPipeError:
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    raise SystemExit(main())

@@ -1,0 +1,662 @@
+"""The imperative shell around the cycle engine: tables in, row results and flags out.
+
+For each compound table: parse the formulas, assign ions, gather every cycle term for every
+row (the row's own cell where it has one, otherwise the reference data, the source recorded
+either way), hand the arrays to the pure engine, and turn its arrays back into per-row
+values and plain-words flags at the cells they concern.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from sheetcycle import __version__
+from sheetcycle.chem import IonAssignment, assign_ions, parse_formula
+from sheetcycle.data import ReferenceData
+from sheetcycle.engine.born_haber import IDX, TERM_LABELS, TERMS, CycleStatus, CycleTerms, close_cycles
+from sheetcycle.engine.conventions import (
+    CellIssue,
+    ColumnConvention,
+    electron_gain_from_column,
+    lattice_from_column,
+    positive_quantity,
+)
+from sheetcycle.engine.diagnose import RATIO_SLIPS, ratio_slips, residual_slips
+from sheetcycle.errors import ChemistryError, FormulaSyntaxError
+from sheetcycle.io.tables import ColumnOverride, a1
+from sheetcycle.model import (
+    Column,
+    ComputedValue,
+    Flag,
+    ReferenceUse,
+    RefValue,
+    RowResult,
+    RunResult,
+    Severity,
+    Table,
+)
+
+__all__ = ["Settings", "close_table", "element_overrides", "run_tables"]
+
+KJ = "kJ/mol"
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Options of a run. Every field is recorded in the outputs."""
+
+    tolerance: float = 10.0  # kJ/mol: closure residuals below max(2σ, this) pass
+    reference_tolerance: float = 0.10  # relative: user values this far from the built-in get a note
+    column_overrides: tuple[ColumnOverride, ...] = ()
+    reference_files: tuple[str, ...] = ()
+    extra_references: tuple[tuple[str, str, int, RefValue], ...] = field(default=(), repr=False)
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "tolerance_kJ_per_mol": self.tolerance,
+            "reference_tolerance_relative": self.reference_tolerance,
+            "lattice_convention": "dissociation (MaXb(s) -> gaseous ions, positive)",
+            "electron_gain_convention": "thermochemical electron-gain enthalpy (negative = exothermic)",
+            "column_overrides": [o.__dict__ for o in self.column_overrides],
+            "reference_files": list(self.reference_files),
+        }
+
+
+# ----------------------------------------------------------------------------- references
+
+_ELEMENT_COLUMNS: dict[tuple[str, int], tuple[str, int]] = {
+    # (column quantity, index) on an elements sheet -> (reference quantity, index)
+    ("atomization", 0): ("atomization_enthalpy", 0),
+    ("atomization_metal", 0): ("atomization_enthalpy", 0),
+    ("atomization_nonmetal", 0): ("atomization_enthalpy", 0),
+    ("ionization_energy", 1): ("ionization_energy", 1),
+    ("ionization_energy", 2): ("ionization_energy", 2),
+    ("ionization_energy", 3): ("ionization_energy", 3),
+    ("ionization_energy", 4): ("ionization_energy", 4),
+    ("electron_affinity", 1): ("electron_gain_enthalpy", 1),
+    ("electron_affinity", 2): ("electron_gain_enthalpy", 2),
+}
+
+
+def element_overrides(table: Table, file_flags: list[Flag]) -> list[tuple[str, str, int, RefValue]]:
+    """Reference values typed on a sheet of per-element values, with their cells as source."""
+    sym_col = table.column("element")
+    if sym_col is None or sym_col.texts is None:
+        return []
+    out: list[tuple[str, str, int, RefValue]] = []
+    for col in table.columns:
+        key = (col.quantity or "", col.index)
+        if key not in _ELEMENT_COLUMNS or col.values is None:
+            continue
+        quantity, index = _ELEMENT_COLUMNS[key]
+        values = col.values
+        if col.quantity == "electron_affinity":
+            conv = electron_gain_from_column(values, col.convention, col.index)
+            _convention_flags(col, conv, table, file_flags)
+            values = conv.values
+        elif col.quantity in ("ionization_energy", "atomization", "atomization_metal",
+                              "atomization_nonmetal"):
+            values, issues = positive_quantity(values)
+            for i in np.nonzero(issues)[0]:
+                file_flags.append(Flag(
+                    "value-impossible", Severity.ERROR,
+                    f"{col.header} of {sym_col.texts[i]} is negative; an ionization or "
+                    "atomization enthalpy is always positive; the value was not used",
+                    table.sheet, a1(table.first_row - 1 + int(i), col.col)))
+        unc = col.uncertainties if col.uncertainties is not None else np.full(len(values), np.nan)
+        for i, sym in enumerate(sym_col.texts):
+            if not sym or math.isnan(values[i]):
+                continue
+            cell = a1(table.first_row - 1 + i, col.col)
+            out.append((sym, quantity, index,
+                        RefValue(float(values[i]), float(unc[i]), f"workbook {table.sheet}!{cell}")))
+    return out
+
+
+def _convention_flags(col: Column, conv: ColumnConvention, table: Table,
+                      file_flags: list[Flag]) -> None:
+    """Say, at the header cell, how an electron-gain column's sign convention was decided."""
+    cell = a1(table.header_row - 1, col.col)
+    if conv.contradicts_header:
+        file_flags.append(Flag(
+            "convention-from-signs", Severity.WARNING,
+            f"column '{col.header}': the header suggests the {_conv_words(col.convention)} "
+            f"convention, but the signs of its values say {_conv_words(conv.convention)}; "
+            "read by the signs", table.sheet, cell))
+    elif conv.decided_by == "signs":
+        file_flags.append(Flag(
+            "convention-from-signs", Severity.NOTE,
+            f"column '{col.header}' read in the {_conv_words(conv.convention)} convention "
+            "(decided by the signs of its values)", table.sheet, cell))
+
+
+# ----------------------------------------------------------------------------- row terms
+
+
+@dataclass
+class _Term:
+    """One cycle term gathered for every row: values, uncertainties and where each came from."""
+
+    values: np.ndarray
+    sigmas: np.ndarray
+    sources: list[str | None]  # per row; None where missing
+
+    @classmethod
+    def empty(cls, n: int) -> _Term:
+        return cls(np.full(n, np.nan), np.full(n, np.nan), [None] * n)
+
+    def fill_from_cells(self, col: Column, values: np.ndarray, table: Table,
+                        label: str, mask: np.ndarray | None = None) -> None:
+        """Take the row's own cell wherever it holds a value (and ``mask`` allows)."""
+        have = ~np.isnan(values) if mask is None else (~np.isnan(values) & mask)
+        self.values = np.where(have, values, self.values)
+        if col.uncertainties is not None:
+            self.sigmas = np.where(have, col.uncertainties, self.sigmas)
+        for i in np.nonzero(have)[0]:
+            self.sources[i] = f"{label}: {table.sheet}!{a1(table.first_row - 1 + int(i), col.col)}"
+
+
+def _ref_term(
+    n: int,
+    keys: Sequence[Any],
+    lookup: Callable[[Any], RefValue | None],
+    label: Callable[[Any], str],
+    used: dict[tuple[str, str, int], ReferenceUse],
+    use_key: Callable[[Any], tuple[str, str, int]],
+) -> _Term:
+    """A term from the reference data, looked up once per distinct key."""
+    term = _Term.empty(n)
+    cache: dict[Any, RefValue | None] = {}
+    for i, key in enumerate(keys):
+        if key is None:
+            continue
+        if key not in cache:
+            cache[key] = lookup(key)
+        ref = cache[key]
+        if ref is None:
+            continue
+        term.values[i] = ref.value
+        term.sigmas[i] = ref.uncertainty
+        term.sources[i] = f"{label(key)}: {ref.source}"
+        element, quantity, index = use_key(key)
+        used.setdefault((element, quantity, index),
+                        ReferenceUse(element, quantity, index, ref.value, ref.uncertainty,
+                                     ref.unit, ref.source))
+    return term
+
+
+def _assign(
+    table: Table, ref: ReferenceData, flags: list[list[Flag]]
+) -> list[IonAssignment | None]:
+    fcol = table.column("formula")
+    assert fcol is not None and fcol.texts is not None
+    ccol = table.column("charge_cation")
+    acol = table.column("charge_anion")
+    out: list[IonAssignment | None] = []
+    cache: dict[tuple[str, int | None, int | None], IonAssignment | str] = {}
+    for i, text in enumerate(fcol.texts):
+        cell = a1(table.first_row - 1 + i, fcol.col)
+        if not text:
+            out.append(None)
+            continue
+        zc = _int_or_none(ccol, i)
+        za = _int_or_none(acol, i)
+        if za is not None and za > 0:
+            za = -za  # an anion charge typed as a magnitude
+        key = (text, zc, za)
+        if key not in cache:
+            try:
+                f = parse_formula(text)
+                cache[key] = assign_ions(f, cation_charges=ref.cation_charges,
+                                         anion_charge_of=ref.anion_charge,
+                                         cation_charge=zc, anion_charge=za)
+            except (FormulaSyntaxError, ChemistryError) as exc:
+                cache[key] = exc.problem if exc.problem else str(exc)
+                if isinstance(exc, FormulaSyntaxError):
+                    cache[key] = "formula:" + str(cache[key])
+        got = cache[key]
+        if isinstance(got, str):
+            code = "formula-unreadable" if got.startswith("formula:") else "ions-unassigned"
+            msg = got.removeprefix("formula:")
+            msg = msg if msg.startswith(text) else f"{text}: {msg}"
+            flags[i].append(Flag(code, Severity.ERROR, msg, table.sheet, cell))
+            out.append(None)
+        else:
+            out.append(got)
+    return out
+
+
+def _int_or_none(col: Column | None, i: int) -> int | None:
+    if col is None:
+        return None
+    if col.values is not None:
+        v = col.values[i]
+        return None if math.isnan(v) else int(round(v))
+    if col.texts is not None and col.texts[i]:
+        t = col.texts[i].strip().replace("−", "-")
+        sign = -1 if t.endswith("-") or t.startswith("-") else 1
+        digits = t.strip("+-")
+        return sign * int(digits) if digits.isdigit() else None
+    return None
+
+
+def close_table(
+    table: Table,
+    ref: ReferenceData,
+    settings: Settings,
+    used: dict[tuple[str, str, int], ReferenceUse],
+    file_flags: list[Flag],
+) -> list[RowResult]:
+    """Close the Born-Haber cycle of every row of a compound table."""
+    n = table.n_rows
+    fcol = table.column("formula")
+    assert fcol is not None and fcol.texts is not None
+    row_flags: list[list[Flag]] = [[] for _ in range(n)]
+    ions = _assign(table, ref, row_flags)
+    nan = np.nan
+    a = np.array([x.n_cation if x else nan for x in ions], dtype=float)
+    b = np.array([x.n_anion if x else nan for x in ions], dtype=float)
+    p = np.array([x.cation_charge if x else nan for x in ions], dtype=float)
+    q = np.array([-x.anion_charge if x else nan for x in ions], dtype=float)
+    cat = [x.cation if x else None for x in ions]
+    an = [x.anion if x else None for x in ions]
+
+    def cell_of(col: Column, i: int) -> str:
+        return a1(table.first_row - 1 + i, col.col)
+
+    def col_issue_flags(col: Column, issues: np.ndarray, code: str, message: Callable[[int], str],
+                        severity: Severity) -> None:
+        for i in np.nonzero(issues)[0]:
+            row_flags[int(i)].append(Flag(code, severity, message(int(i)), table.sheet,
+                                          cell_of(col, int(i))))
+
+    terms: dict[str, _Term] = {}
+    # -- atomization of the metal and the non-metal
+    terms["atomization_metal"] = _ref_term(
+        n, cat, ref.atomization, lambda s: f"ΔatH({s})", used,
+        lambda s: (s, "atomization_enthalpy", 0))
+    terms["atomization_nonmetal"] = _ref_term(
+        n, an, ref.atomization, lambda s: f"ΔatH({s})", used,
+        lambda s: (s, "atomization_enthalpy", 0))
+    ref_at_m = terms["atomization_metal"].values.copy()
+    ref_at_x = terms["atomization_nonmetal"].values.copy()
+    for qname in ("atomization_metal", "atomization_nonmetal"):
+        col = table.column(qname)
+        if col is not None and col.values is not None:
+            vals, issues = positive_quantity(col.values)
+            col_issue_flags(col, issues, "value-impossible",
+                            lambda i, c=col: f"{c.header} is negative; an atomization enthalpy is "
+                                             "always positive; the value was not used",
+                            Severity.ERROR)
+            expected = ref_at_m if qname == "atomization_metal" else ref_at_x
+            vals = _check_against_reference(col, vals, expected, table, row_flags, settings)
+            terms[qname].fill_from_cells(col, vals, table, col.header)
+    bond = table.column("bond_dissociation")
+    if bond is not None and bond.values is not None:
+        vals, _ = positive_quantity(bond.values)
+        # ΔatH(X) = ½ D(X–X) per atom of X, for the diatomic elements (common practice, no source)
+        no_atom_cell = np.isnan(terms["atomization_nonmetal"].values) | np.array(
+            [s is not None and s.startswith("ΔatH(") and ": workbook" not in s and "!" not in s
+             for s in terms["atomization_nonmetal"].sources])
+        terms["atomization_nonmetal"].fill_from_cells(bond, vals / 2.0, table,
+                                                     f"½ {bond.header}", mask=no_atom_cell)
+
+    # -- ionization energies: IE1..IEp, each from the row or the reference
+    ie_total = np.zeros(n)
+    ie_var = np.zeros(n)
+    ie_sources: list[list[str]] = [[] for _ in range(n)]
+    ie_missing = np.zeros(n, dtype=bool)
+    for k in range(1, 5):
+        need = p >= k
+        if not need.any():
+            continue
+        t = _ref_term(n, [s if need[i] else None for i, s in enumerate(cat)],
+                      lambda s, k=k: ref.ionization(s, k), lambda s, k=k: f"IE{k}({s})", used,
+                      lambda s, k=k: (s, "ionization_energy", k))
+        col = table.column("ionization_energy", k)
+        if col is not None and col.values is not None:
+            vals, issues = positive_quantity(col.values)
+            col_issue_flags(col, issues, "value-impossible",
+                            lambda i, c=col: f"{c.header} is negative; an ionization energy is "
+                                             "always positive; the value was not used",
+                            Severity.ERROR)
+            vals = _check_against_reference(col, vals, t.values, table, row_flags, settings)
+            t.fill_from_cells(col, vals, table, col.header, mask=need)
+        ie_missing |= need & np.isnan(t.values)
+        ie_total += np.where(need, np.nan_to_num(t.values), 0.0)
+        ie_var += np.where(need, np.nan_to_num(t.sigmas) ** 2, 0.0)
+        for i in np.nonzero(need & ~np.isnan(t.values))[0]:
+            ie_sources[int(i)].append(t.sources[int(i)] or "")
+    ion = _Term(np.where(ie_missing | np.isnan(p), np.nan, ie_total),
+                np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
+                ["; ".join(s) if s else None for s in ie_sources])
+    sum_col = table.column("ionization_energy", 0)
+    if sum_col is not None and sum_col.values is not None:
+        vals, _ = positive_quantity(sum_col.values)
+        _check_ie_sum(sum_col, vals, cat, p, ref, table, row_flags)
+        ion.fill_from_cells(sum_col, vals, table, sum_col.header)
+    terms["ionization"] = ion
+
+    # -- electron gains of the anion
+    eg1 = _ref_term(n, an, lambda s: ref.electron_gain(s, 1), lambda s: f"ΔegH1({s})", used,
+                    lambda s: (s, "electron_gain_enthalpy", 1))
+    egh = _ref_term(n, [s if q[i] >= 2 else None for i, s in enumerate(an)],
+                    lambda s: ref.electron_gain(s, 2), lambda s: f"ΔegH2({s})", used,
+                    lambda s: (s, "electron_gain_enthalpy", 2))
+    # A triply charged anion (N3−) also needs a third gain, which tables do not give.
+    egh.values = np.where(q >= 3, np.nan, egh.values)
+    for k, term in ((1, eg1), (2, egh)):
+        col = table.column("electron_affinity", k)
+        if col is None or col.values is None:
+            continue
+        conv = electron_gain_from_column(col.values, col.convention, k)
+        _convention_flags(col, conv, table, file_flags)
+        col_issue_flags(col, conv.issues == CellIssue.MIXED_SIGN, "sign-mixed",
+                        lambda i, c=col, cv=conv: f"{c.header}: this value's sign differs from the "
+                        f"rest of the column ({_conv_words(cv.convention)} convention); check which "
+                        "convention it was copied in", Severity.WARNING)
+        mask = q >= k if k == 2 else None
+        vals = _check_against_reference(col, conv.values, term.values, table, row_flags, settings)
+        term.fill_from_cells(col, vals, table, col.header, mask=mask)
+    terms["electron_gain_1"] = eg1
+    terms["electron_gain_higher"] = egh
+
+    # -- formation and lattice enthalpies: the row's own
+    form = _Term.empty(n)
+    fcol_h = table.column("formation_enthalpy")
+    if fcol_h is not None and fcol_h.values is not None:
+        form.fill_from_cells(fcol_h, fcol_h.values, table, fcol_h.header)
+    terms["formation_enthalpy"] = form
+    lat = _Term.empty(n)
+    lcol = table.column("lattice_enthalpy") or table.column("lattice_energy")
+    if lcol is not None and lcol.values is not None:
+        conv = lattice_from_column(lcol.values, lcol.convention)
+        if conv.decided_by == "signs":
+            file_flags.append(Flag(
+                "convention-from-signs", Severity.NOTE,
+                f"column '{lcol.header}' read in the {conv.convention} convention (decided by "
+                "the signs of its values); results are given in the dissociation convention",
+                table.sheet, a1(table.header_row - 1, lcol.col)))
+        col_issue_flags(lcol, conv.issues == CellIssue.IMPOSSIBLE, "value-impossible",
+                        lambda i, c=lcol, cv=conv: f"{c.header}: a lattice enthalpy of this sign is "
+                        f"impossible in the {cv.convention} convention the header states; "
+                        "the value was not used", Severity.ERROR)
+        col_issue_flags(lcol, conv.issues == CellIssue.MIXED_SIGN, "sign-mixed",
+                        lambda i, c=lcol, cv=conv: f"{c.header}: this value's sign differs from the "
+                        f"rest of the column ({cv.convention} convention): formation and "
+                        "dissociation values seem mixed; its magnitude was used", Severity.WARNING)
+        lat.fill_from_cells(lcol, conv.values, table, lcol.header)
+        if lcol.quantity == "lattice_energy":
+            file_flags.append(Flag(
+                "energy-as-enthalpy", Severity.NOTE,
+                f"column '{lcol.header}' holds lattice energies U; they were compared with the "
+                "cycle's lattice enthalpy directly, which differ by a few RT",
+                table.sheet, a1(table.header_row - 1, lcol.col)))
+    terms["lattice_enthalpy"] = lat
+
+    values = {name: terms[name].values for name in TERMS}
+    sigmas = {name: terms[name].sigmas for name in TERMS}
+    full = CycleTerms.from_columns(n_cation=a, n_anion=b, anion_charge=q, values=values,
+                                   sigmas=sigmas)
+    without_lattice = CycleTerms.from_columns(
+        n_cation=a, n_anion=b, anion_charge=q,
+        values={**values, "lattice_enthalpy": np.full(n, np.nan)}, sigmas=sigmas)
+    sol = close_cycles(full, tolerance=settings.tolerance)
+    cyc = close_cycles(without_lattice, tolerance=settings.tolerance)
+    return _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an, row_flags)
+
+
+def _conv_words(conv: str | None) -> str:
+    return {"released": "energy-released (EA > 0)", "gain": "electron-gain enthalpy (ΔegH < 0)",
+            "formation": "formation", "dissociation": "dissociation"}.get(conv or "", str(conv))
+
+
+def _check_against_reference(col: Column, given: np.ndarray, expected: np.ndarray, table: Table,
+                             row_flags: list[list[Flag]], settings: Settings) -> np.ndarray:
+    """Flag user values that look like a unit slip, or stray far from the built-in value.
+
+    Returns ``given`` with the unit slips removed (NaN), so that the reference value is used
+    for them instead: a number off by a unit factor is worse than none.
+    """
+    slip = ratio_slips(given, expected)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel = np.abs(given - expected) / np.abs(expected)
+    for i in np.nonzero(slip >= 0)[0]:
+        i = int(i)
+        name, _, words = RATIO_SLIPS[int(slip[i])]
+        row_flags[i].append(Flag(
+            "unit-slip", Severity.WARNING,
+            f"{col.header} = {given[i]:.4g} kJ/mol after conversion, against {expected[i]:.4g} "
+            f"kJ/mol in the reference data: {words}; the reference value was used instead",
+            table.sheet, a1(table.first_row - 1 + i, col.col)))
+    far = (slip < 0) & (rel > settings.reference_tolerance)
+    for i in np.nonzero(far)[0]:
+        i = int(i)
+        row_flags[i].append(Flag(
+            "differs-from-reference", Severity.NOTE,
+            f"{col.header} = {given[i]:.4g} kJ/mol differs from the reference value "
+            f"{expected[i]:.4g} kJ/mol by {100 * rel[i]:.0f} %; the row's own value was used",
+            table.sheet, a1(table.first_row - 1 + i, col.col)))
+    return np.where(slip >= 0, np.nan, given)
+
+
+def _check_ie_sum(col: Column, given: np.ndarray, cat: Sequence[str | None], p: np.ndarray,
+                  ref: ReferenceData, table: Table, row_flags: list[list[Flag]]) -> None:
+    """A sum of ionization energies that stops one short of the cation's charge."""
+    for i, sym in enumerate(cat):
+        if sym is None or math.isnan(given[i]) or math.isnan(p[i]) or p[i] < 2:
+            continue
+        short = ref.ionization_sum(sym, int(p[i]) - 1)
+        if short is not None and abs(given[i] - short.value) <= 0.01 * short.value:
+            row_flags[i].append(Flag(
+                "ionization-short", Severity.ERROR,
+                f"{col.header} = {given[i]:.1f} kJ/mol equals IE1..IE{int(p[i]) - 1} of {sym}, "
+                f"but {sym}{int(p[i])}+ needs IE1..IE{int(p[i])}: IE{int(p[i])} seems left out",
+                table.sheet, a1(table.first_row - 1 + i, col.col)))
+
+
+def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: dict[str, _Term], sol: Any, cyc: Any,
+                 a: np.ndarray, b: np.ndarray, p: np.ndarray, q: np.ndarray,
+                 cat: Sequence[str | None], an: Sequence[str | None],
+                 row_flags: list[list[Flag]]) -> list[RowResult]:
+    n = table.n_rows
+    fcol = table.column("formula")
+    assert fcol is not None and fcol.texts is not None
+    lcol = table.column("lattice_enthalpy") or table.column("lattice_energy")
+    fhcol = table.column("formation_enthalpy")
+    li = IDX["lattice_enthalpy"]
+
+    # Residual diagnosis, vectorized over the closed rows.
+    tol = np.maximum(2 * np.nan_to_num(sol.residual_sigma), settings.tolerance)
+    v = sol.completed
+    candidates = {
+        "ie_last": np.where(p >= 2, a * _last_ie(ref, cat, p), np.nan),
+        "eg_higher": np.where(q >= 2, b * v[:, IDX["electron_gain_higher"]], np.nan),
+        "metal_factor": np.where(a > 1, (a - 1) * (v[:, IDX["atomization_metal"]]
+                                                   + v[:, IDX["ionization"]]), np.nan),
+        "nonmetal_factor": np.where(b > 1, (b - 1) * (v[:, IDX["atomization_nonmetal"]]
+                                                      + v[:, IDX["electron_gain_1"]]
+                                                      + np.where(q >= 2, v[:, IDX["electron_gain_higher"]], 0)), np.nan),
+        "formation_kcal": (4.184 - 1.0) * v[:, IDX["formation_enthalpy"]],
+    }
+    names, match = residual_slips(sol.residual, tol, candidates)
+    lat_slip = ratio_slips(v[:, li], cyc.value)
+
+    results: list[RowResult] = []
+    for i in range(n):
+        formula = fcol.texts[i]
+        flags = row_flags[i]
+        rr = RowResult(sheet=table.sheet, row=table.first_row + i, formula=formula, flags=flags)
+        results.append(rr)
+        if not formula:
+            continue
+        status = int(sol.status[i])
+        fcell = a1(table.first_row - 1 + i, fcol.col)
+        if status == CycleStatus.NO_IONS:
+            continue
+        sources_cycle = _sources(terms, i, exclude=("lattice_enthalpy",))
+        if int(cyc.status[i]) == CycleStatus.SOLVED and int(cyc.solved[i]) == li:
+            rr.values["lattice_enthalpy"] = ComputedValue(
+                float(cyc.value[i]), float(cyc.sigma[i]), KJ,
+                "Born-Haber cycle: ΔH_L = a·(ΔatH(M) + ΣIE) + b·(ΔatH(X) + ΣΔegH) − ΔfH; "
+                "dissociation convention" + _sigma_note(terms, i, cyc),
+                tuple(sources_cycle))
+        if status == CycleStatus.CLOSED:
+            rr.values["closure_residual"] = ComputedValue(
+                float(sol.residual[i]), float(sol.residual_sigma[i]), KJ,
+                "cycle lattice enthalpy minus the given lattice enthalpy",
+                tuple(_sources(terms, i)))
+            if not sol.sigma_complete[i]:
+                flags.append(Flag("uncertainty-partial", Severity.NOTE,
+                                  "some terms have no uncertainty; the combined uncertainty "
+                                  "counts only those that do", table.sheet, fcell))
+            if sol.exceeds[i]:
+                cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
+                msg = (f"the cycle does not close: from the other terms the lattice enthalpy is "
+                       f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
+                       f"the residual {sol.residual[i]:+.1f} ± {sol.residual_sigma[i]:.1f} kJ/mol "
+                       f"is larger than max(2σ, {settings.tolerance:g} kJ/mol)")
+                hint = _residual_hint(names, int(match[i]), int(lat_slip[i]), cat[i], an[i],
+                                      int(p[i]), int(q[i]), a[i], b[i])
+                flags.append(Flag("cycle-open", Severity.WARNING, msg + (f". {hint}" if hint else ""),
+                                  table.sheet, cell))
+        elif status == CycleStatus.SOLVED:
+            k = int(sol.solved[i])
+            name = TERMS[k]
+            out_name = {"formation_enthalpy": "formation_enthalpy",
+                        "electron_gain_1": "electron_gain_enthalpy",
+                        "electron_gain_higher": "electron_gain_enthalpy",
+                        "atomization_metal": "atomization_enthalpy",
+                        "atomization_nonmetal": "atomization_enthalpy",
+                        "ionization": "ionization_energy"}.get(name)
+            if out_name is not None:
+                rr.values[out_name] = ComputedValue(
+                    float(sol.value[i]), float(sol.sigma[i]), KJ,
+                    f"Born-Haber cycle solved for the {TERM_LABELS[name]}",
+                    tuple(_sources(terms, i, exclude=(name,))))
+                flags.append(Flag("term-derived", Severity.NOTE,
+                                  f"the {TERM_LABELS[name]} was not given and was derived from "
+                                  f"the cycle: {sol.value[i]:.1f} kJ/mol", table.sheet, fcell))
+        else:  # underdetermined
+            missing = [TERMS[k] for k in np.nonzero(sol.missing[i])[0]]
+            words = ", ".join(_missing_words(t, cat[i], an[i], int(p[i]), int(q[i])) for t in missing)
+            cell = fcell
+            if "formation_enthalpy" in missing and fhcol is not None:
+                cell = a1(table.first_row - 1 + i, fhcol.col)
+            flags.append(Flag("inputs-missing", Severity.ERROR,
+                              f"cannot close the cycle of {formula}: missing {words}; a cycle "
+                              "can be solved for one missing term only",
+                              table.sheet, cell))
+    return results
+
+
+def _sigma_note(terms: dict[str, _Term], i: int, sol: Any) -> str:
+    """Which terms the uncertainty leaves out, when some have none."""
+    if sol.sigma_complete[i]:
+        return ""
+    names = [TERM_LABELS[name] for name, t in terms.items()
+             if name != "lattice_enthalpy" and sol.coefficients[i, IDX[name]] != 0
+             and not math.isnan(t.values[i]) and math.isnan(t.sigmas[i])]
+    return ("; the uncertainty counts only the terms that have one (none given for: "
+            + ", ".join(names) + ")") if names else ""
+
+
+def _last_ie(ref: ReferenceData, cat: Sequence[str | None], p: np.ndarray) -> np.ndarray:
+    """IE_p of each row's cation (the term a derivation most often leaves out)."""
+    out = np.full(len(cat), np.nan)
+    for i, s in enumerate(cat):
+        if s is not None and not math.isnan(p[i]) and p[i] >= 2:
+            r = ref.ionization(s, int(p[i]))
+            if r is not None:
+                out[i] = r.value
+    return out
+
+
+def _residual_hint(names: tuple[str, ...], match: int, lat_slip: int, m: str | None,
+                   x: str | None, p: int, q: int, a: float, b: float) -> str:
+    if lat_slip >= 0:
+        return "The given lattice enthalpy: " + RATIO_SLIPS[lat_slip][2]
+    if match < 0:
+        return ""
+    what = names[match]
+    return {
+        "ie_last": f"The residual matches IE{p} of {m}: was the last ionization energy "
+                   f"left out where the given value was derived?",
+        "eg_higher": f"The residual matches the second electron gain of {x}: was it left out "
+                     "where the given value was derived?",
+        "metal_factor": f"The residual matches {a - 1:g} × (ΔatH + ΣIE) of {m}: was the "
+                        f"stoichiometric factor {a:g} for {m} missed?",
+        "nonmetal_factor": f"The residual matches {b - 1:g} × (ΔatH + ΣΔegH) of {x}: was the "
+                           f"stoichiometric factor {b:g} for {x} missed?",
+        "formation_kcal": "The residual matches an enthalpy of formation in kcal/mol read as "
+                          "kJ/mol: check the unit of the formation column",
+    }[what]
+
+
+def _missing_words(term: str, m: str | None, x: str | None, p: int, q: int) -> str:
+    if term == "ionization":
+        return f"ionization energies IE1..IE{p} of {m}"
+    if term == "electron_gain_higher":
+        return (f"electron gains 2..{q} of {x} (no tabulated value; give them in a column "
+                "or on an elements sheet)")
+    if term in ("atomization_metal",):
+        return f"the atomization enthalpy of {m}"
+    if term == "atomization_nonmetal":
+        return f"the atomization enthalpy of {x}"
+    if term == "electron_gain_1":
+        return f"the first electron-gain enthalpy of {x}"
+    return f"the {TERM_LABELS[term]}"
+
+
+def _sources(terms: dict[str, _Term], i: int, exclude: Iterable[str] = ()) -> list[str]:
+    skip = set(exclude)
+    return [s for name, t in terms.items() if name not in skip and (s := t.sources[i])]
+
+
+# ----------------------------------------------------------------------------- whole run
+
+
+def _route_to_rows(flags: list[Flag], rows: Sequence[RowResult]) -> list[Flag]:
+    """Attach each cell flag to the compound row it concerns; keep the rest file-level."""
+    by_row = {(r.sheet, r.row): r for r in rows}
+    rest: list[Flag] = []
+    for f in flags:
+        digits = (f.cell or "").lstrip("ABCDEFGHIJKLMNOPQRSTUVWXYZ")
+        target = by_row.get((f.sheet or "", int(digits))) if digits.isdigit() else None
+        if target is None:
+            rest.append(f)
+        else:
+            target.flags.insert(0, f)
+    return rest
+
+
+def run_tables(
+    path: str | Path,
+    tables: Sequence[Table],
+    settings: Settings,
+    file_flags: list[Flag],
+    *,
+    reference: ReferenceData | None = None,
+) -> RunResult:
+    """Close every compound table's cycles, with any element sheet's values as references."""
+    base = reference or ReferenceData.builtin()
+    overrides: list[tuple[str, str, int, RefValue]] = list(settings.extra_references)
+    for t in tables:
+        if t.column("element") is not None and t.column("formula") is None:
+            overrides.extend(element_overrides(t, file_flags))
+    ref = base.with_overrides(overrides) if overrides else base
+    used: dict[tuple[str, str, int], ReferenceUse] = {}
+    rows: list[RowResult] = []
+    for t in tables:
+        if t.column("formula") is not None:
+            rows.extend(close_table(t, ref, settings, used, file_flags))
+    file_flags = _route_to_rows(file_flags, rows)
+    return RunResult(version=__version__, input=str(path), tables=list(tables), rows=rows,
+                     references=sorted(used.values(), key=lambda r: (r.element, r.quantity, r.index)),
+                     settings=settings.as_dict(), file_flags=file_flags)
