@@ -8,8 +8,6 @@ The public surface is what ``__all__`` lists; everything else is an implementati
 True
 """
 
-from __future__ import annotations
-
 __version__ = "0.1.0"
 
 from sheetcycle.api import Inspection, annotate, inspect, load_reference_file, solve_cycles
