@@ -1,0 +1,703 @@
+"""The user's own .xlsx/.xlsm handed back with additions, by editing the package.
+
+The workbook is never loaded and saved by a spreadsheet library (that rewrites every part
+and drops what it does not know: shapes, threaded comments, sparklines, VBA ...). Instead
+every zip entry that needs no change is copied as its stored bytes, and the few parts that
+change are edited by splicing bytes:
+
+* the worksheets that get columns or notes (streamed row by row, see package_sheet),
+* ``xl/styles.xml`` (formats appended; existing indices unchanged),
+* ``[Content_Types].xml``, ``xl/workbook.xml`` and its relationships (new sheets last),
+* the notes' comments and VML parts (added to the sheet's own parts when it has them),
+* ``xl/calcChain.xml`` is dropped whenever formulas are added (applications rebuild it).
+
+Everything that can be checked is checked before the output is opened; a problem found
+while streaming (an added column landing on an occupied cell) aborts the temporary file,
+so no output appears. The input file is only read.
+"""
+
+from __future__ import annotations
+
+import re
+import time
+import zipfile
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from sheetcycle.errors import ReadError, WriteError
+from sheetcycle.io.atomic import atomic_output
+from sheetcycle.io.package_cells import CellStyler, new_sheet_xml
+from sheetcycle.io.package_notes import (
+    NoteText,
+    add_comments,
+    add_vml,
+    existing_refs,
+    used_vml_blocks,
+)
+from sheetcycle.io.package_sheet import (
+    ColumnJob,
+    SheetJob,
+    SheetRewriter,
+    find_cell_styles,
+    legacy_drawing_id,
+    scan_tail,
+)
+from sheetcycle.io.package_styles import MINIMAL_STYLES, StyleBook
+from sheetcycle.io.package_xml import (
+    MAX_COL,
+    MAX_ROW,
+    STRICT_NS,
+    Rel,
+    add_rels,
+    esc_attr,
+    free_rel_ids,
+    open_empty,
+    parse_a1,
+    parse_rels,
+    parse_xml,
+    relative_target,
+    rels_path,
+    remove_rel,
+    resolve_target,
+)
+from sheetcycle.io.package_zip import copy_raw
+from sheetcycle.io.results_book import SEVERITY_FILLS
+from sheetcycle.io.safety import Limits, check_zip, read_member
+
+__all__ = [
+    "AddedCell",
+    "AddedColumn",
+    "CellNote",
+    "NewSheet",
+    "SheetAddition",
+    "write_annotated",
+]
+
+#: Fill colour per severity name (shared with the results workbook's legend).
+FILLS: dict[str, str] = {sev.value: colour for sev, (colour, _) in SEVERITY_FILLS.items()}
+_RANK = {"note": 0, "warning": 1, "error": 2}
+
+_RT = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/"
+_T_SHEET = _RT + "worksheet"
+_T_STYLES = _RT + "styles"
+_T_COMMENTS = _RT + "comments"
+_T_VML = _RT + "vmlDrawing"
+_T_CALC = _RT + "calcChain"
+_T_OFFICE = _RT + "officeDocument"
+_STRICT_OFFICE = "http://purl.oclc.org/ooxml/officeDocument/relationships/officeDocument"
+_CT = "application/vnd.openxmlformats-officedocument."
+_CT_SHEET = _CT + "spreadsheetml.worksheet+xml"
+_CT_COMMENTS = _CT + "spreadsheetml.comments+xml"
+_CT_STYLES = _CT + "spreadsheetml.styles+xml"
+_CT_VML = _CT + "vmlDrawing"
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
+_OK_SUFFIXES = {".xlsx", ".xlsm", ".xltx", ".xltm"}
+_OTHER_SUFFIXES = {".xls", ".xlsb", ".ods", ".csv", ".tsv", ".txt", ".fods"}
+_BAD_SHEET_CHARS = re.compile(r"[\[\]:*?/\\]")
+
+
+@dataclass(frozen=True, slots=True)
+class AddedCell:
+    """One new cell. ``formula`` is A1 text without '='; ``value`` is its cached value."""
+
+    value: float | str | None
+    formula: str | None = None
+    style: str | None = None  # header, number, text, error, warning, note
+
+
+@dataclass(frozen=True, slots=True)
+class AddedColumn:
+    header: str
+    cells: Sequence[AddedCell]  # one per data row, in order
+    number_format: str | None = "0.0"
+    width: float | None = None  # None: from the header's length
+
+
+@dataclass(frozen=True, slots=True)
+class SheetAddition:
+    sheet: str  # an existing sheet
+    header_row: int  # 1-based
+    first_row: int  # 1-based first data row
+    start_col: int  # 0-based column of the first added column
+    columns: Sequence[AddedColumn]
+    header_style_cell: str | None = None  # A1 of a header cell whose format the headers copy
+
+
+@dataclass(frozen=True, slots=True)
+class CellNote:
+    sheet: str
+    cell: str  # A1
+    text: str
+    severity: str  # error, warning, note
+
+
+@dataclass(frozen=True, slots=True)
+class NewSheet:
+    name: str
+    rows: Sequence[Sequence[AddedCell | None]]
+    col_widths: Sequence[float] = ()
+    links: Mapping[tuple[int, int], str] = field(default_factory=dict)  # (row0, col0) -> target
+
+
+def _cell_attrs(cell: object) -> tuple[object, str | None, str | None]:
+    c: AddedCell = cell  # type: ignore[assignment]
+    return c.value, c.formula, c.style
+
+
+# --- refusing what cannot be annotated --------------------------------------------------
+
+
+def _check_kind(src: Path, dst: Path) -> None:
+    file = str(src)
+    suffix = src.suffix.lower()
+    if suffix in _OTHER_SUFFIXES:
+        raise WriteError(
+            f"annotated copies are for .xlsx/.xlsm workbooks; for a {suffix} file use the "
+            "results workbook option",
+            file=file,
+            expected=".xlsx or .xlsm",
+            found=suffix,
+        )
+    try:
+        with open(src, "rb") as fh:
+            magic = fh.read(8)
+    except OSError as exc:
+        raise ReadError(f"cannot read the workbook ({exc.strerror})", file=file) from exc
+    if magic == _OLE_MAGIC:
+        raise WriteError(
+            "the workbook is encrypted (password-protected) or is a legacy binary .xls "
+            "renamed; it cannot be annotated. Save an unprotected .xlsx copy, or use the "
+            "results workbook option",
+            file=file,
+        )
+    if not magic.startswith(b"PK"):
+        raise ReadError(
+            "not a workbook package (no zip signature)",
+            file=file,
+            expected=".xlsx or .xlsm (a zip file)",
+        )
+    if suffix not in _OK_SUFFIXES:
+        raise WriteError(
+            "annotated copies are for .xlsx/.xlsm workbooks",
+            file=file,
+            expected=".xlsx or .xlsm",
+            found=suffix or "(no extension)",
+        )
+    if dst.suffix.lower() != suffix:
+        raise WriteError(
+            "the annotated copy must keep the input's file type (Excel refuses a macro "
+            "workbook named .xlsx and the reverse)",
+            file=str(dst),
+            expected=suffix,
+            found=dst.suffix or "(no extension)",
+        )
+
+
+def _check_sheet_name(name: str, taken: set[str], file: str) -> None:
+    if (
+        not name
+        or len(name) > 31
+        or _BAD_SHEET_CHARS.search(name)
+        or name[0] == "'"
+        or name[-1] == "'"
+        or name.lower() == "history"
+    ):
+        raise WriteError(
+            "not a valid sheet name",
+            file=file,
+            sheet=name,
+            expected="1 to 31 characters, none of []:*?/\\, not starting or ending with '",
+        )
+    if name.lower() in taken:
+        raise WriteError(
+            "a sheet of this name already exists in the workbook",
+            file=file,
+            sheet=name,
+            expected="a new sheet name",
+        )
+    taken.add(name.lower())
+
+
+# --- the plan ---------------------------------------------------------------------------
+
+
+@dataclass
+class _Plan:
+    replaced: dict[str, bytes] = field(default_factory=dict)  # changed small parts
+    added: dict[str, bytes] = field(default_factory=dict)  # new parts, written last
+    jobs: dict[str, SheetJob] = field(default_factory=dict)  # streamed worksheet parts
+    dropped: set[str] = field(default_factory=set)
+    styles_part: str = "xl/styles.xml"
+    styles: StyleBook | None = None
+
+
+class _Package:
+    def __init__(self, src: Path, zin: zipfile.ZipFile) -> None:
+        self.file = str(src)
+        self.zin = zin
+        self.limits = Limits()
+        self.names = set(zin.namelist())
+
+    def read(self, part: str) -> bytes | None:
+        if part not in self.names:
+            return None
+        return read_member(self.zin, part, self.limits, file=self.file)
+
+    def need(self, part: str) -> bytes:
+        data = self.read(part)
+        if data is None:
+            raise ReadError(f"the package has no part {part!r}", file=self.file)
+        return data
+
+
+def _free_part(names: set[str], pattern: str) -> str:
+    k = 1
+    while pattern.format(k) in names:
+        k += 1
+    name = pattern.format(k)
+    names.add(name)
+    return name
+
+
+def _content_types(
+    data: bytes, overrides: list[tuple[str, str]], drop: list[str], need_vml_default: bool
+) -> bytes:
+    data = open_empty(data, b"Types")
+    for part in drop:
+        data = re.sub(
+            rb"<Override\b[^>]*?PartName\s*=\s*[\"']/"
+            + re.escape(part.encode())
+            + rb"[\"'][^>]*?/>",
+            b"",
+            data,
+        )
+    add = "".join(
+        f'<Override PartName="/{esc_attr(p)}" ContentType="{esc_attr(t)}"/>' for p, t in overrides
+    )
+    if need_vml_default and not re.search(rb"Extension\s*=\s*[\"']vml[\"']", data, re.I):
+        add = f'<Default Extension="vml" ContentType="{_CT_VML}"/>' + add
+    end = data.rfind(b"</Types>")
+    return data[:end] + add.encode() + data[end:]
+
+
+def _plan(
+    pkg: _Package,
+    additions: Sequence[SheetAddition],
+    notes: Sequence[CellNote],
+    new_sheets: Sequence[NewSheet],
+) -> _Plan:
+    file = pkg.file
+    plan = _Plan()
+    root_rels = parse_rels(pkg.read("_rels/.rels"), "_rels/.rels", file)
+    office = [r for r in root_rels if r.type in (_T_OFFICE, _STRICT_OFFICE)]
+    if any(r.type == _STRICT_OFFICE for r in office):
+        raise _strict(file)
+    wb_part = resolve_target("", office[0].target) if office else "xl/workbook.xml"
+    wb = pkg.need(wb_part)
+    if STRICT_NS in wb[:4096]:
+        raise _strict(file)
+    wb_rels_part = rels_path(wb_part)
+    wb_rels_data = pkg.read(wb_rels_part)
+    wb_rels = parse_rels(wb_rels_data, wb_rels_part, file)
+    by_id = {r.id: r for r in wb_rels}
+    root = parse_xml(wb, wb_part, file)
+    ns_main = root.tag.partition("}")[0].lstrip("{")
+    ns_r = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
+    sheets: dict[str, str] = {}
+    sheet_ids: list[int] = []
+    for el in root.iter(f"{{{ns_main}}}sheet"):
+        name = el.get("name", "")
+        rel = by_id.get(el.get(f"{{{ns_r}}}id", ""))
+        sheet_ids.append(int(el.get("sheetId", "0") or 0))
+        if rel is not None and rel.type == _T_SHEET:
+            sheets[name] = resolve_target(wb_part, rel.target)
+
+    def sheet_part(name: str) -> str:
+        if name not in sheets:
+            raise WriteError(
+                "the workbook has no worksheet of this name",
+                file=file,
+                sheet=name,
+                expected="one of " + ", ".join(map(repr, sheets)),
+            )
+        if sheets[name] not in pkg.names:
+            raise ReadError(
+                "the worksheet's part is missing from the package",
+                file=file,
+                sheet=name,
+                found=sheets[name],
+            )
+        return sheets[name]
+
+    # styles
+    styles_rel = next((r for r in wb_rels if r.type == _T_STYLES), None)
+    new_wb_rels: list[tuple[str, str, str]] = []
+    overrides: list[tuple[str, str]] = []
+    wb_rel_ids = free_rel_ids(wb_rels, len(new_sheets) + 1)
+    if styles_rel is not None and resolve_target(wb_part, styles_rel.target) in pkg.names:
+        plan.styles_part = resolve_target(wb_part, styles_rel.target)
+        styles = StyleBook(pkg.need(plan.styles_part))
+    else:
+        plan.styles_part = _free_part(pkg.names, "xl/styles{}.xml")
+        styles = StyleBook(MINIMAL_STYLES)
+        new_wb_rels.append(
+            (wb_rel_ids.pop(), _T_STYLES, relative_target(wb_part, plan.styles_part))
+        )
+        overrides.append((plan.styles_part, _CT_STYLES))
+    plan.styles = styles
+    styler = CellStyler(styles, FILLS)
+    any_formula = False
+
+    # columns
+    for add in additions:
+        part = sheet_part(add.sheet)
+        job = plan.jobs.setdefault(part, SheetJob(sheet=add.sheet, part=part))
+        _check_addition(add, file)
+        header_xf = styler.header()
+        if add.header_style_cell:
+            try:
+                ref = parse_a1(add.header_style_cell)
+            except ValueError as exc:
+                raise WriteError(
+                    "header_style_cell is not an A1 cell reference",
+                    file=file,
+                    sheet=add.sheet,
+                    found=add.header_style_cell,
+                ) from exc
+            with pkg.zin.open(part) as fh:
+                found = find_cell_styles(fh, {ref})
+            if ref in found:
+                header_xf = found[ref]
+        cols: list[ColumnJob] = []
+        for k, col in enumerate(add.columns):
+            number_xf = (
+                styles.xf(numfmt=styles.number_format(col.number_format))
+                if col.number_format and col.number_format != "General"
+                else 0
+            )
+            width = (
+                col.width
+                if col.width is not None
+                else min(max(len(col.header) * 1.1 + 2, 10.0), 60.0)
+            )
+            cols.append(
+                ColumnJob(
+                    col=add.start_col + k,
+                    header=col.header,
+                    cells=col.cells,
+                    width=width,
+                    number_xf=number_xf,
+                    header_xf=header_xf,
+                )
+            )
+            any_formula = any_formula or any(c.formula is not None for c in col.cells)
+        taken = {c.col for c in job.columns()}
+        if taken & {c.col for c in cols}:
+            raise WriteError(
+                "two additions put columns in the same place",
+                file=file,
+                sheet=add.sheet,
+                found=sorted(taken & {c.col for c in cols}),
+            )
+        job.header_rows.setdefault(add.header_row, []).extend(cols)
+        n = len(add.columns[0].cells) if add.columns else 0
+        job.blocks.append((add.first_row, n, cols))
+
+    # notes
+    merged: dict[tuple[str, int, int], tuple[str, list[str]]] = {}
+    for note in notes:
+        if note.severity not in FILLS:
+            raise WriteError(
+                "unknown note severity",
+                file=file,
+                sheet=note.sheet,
+                cell=note.cell,
+                expected="error, warning or note",
+                found=note.severity,
+            )
+        sheet_part(note.sheet)
+        try:
+            row, col = parse_a1(note.cell)
+        except ValueError as exc:
+            raise WriteError(
+                "note cell is not an A1 cell reference",
+                file=file,
+                sheet=note.sheet,
+                found=note.cell,
+            ) from exc
+        key = (note.sheet, row, col)
+        sev, texts = merged.get(key, (note.severity, []))
+        if _RANK[note.severity] > _RANK[sev]:
+            sev = note.severity
+        texts.append(note.text)
+        merged[key] = (sev, texts)
+    by_sheet: dict[str, list[NoteText]] = {}
+    for (sheet, row, col), (sev, texts) in merged.items():
+        part = sheet_part(sheet)
+        job = plan.jobs.setdefault(part, SheetJob(sheet=sheet, part=part))
+        job.notes.setdefault(row, {})[col] = FILLS[sev]
+        by_sheet.setdefault(part, []).append(NoteText(row, col, "\n".join(texts)))
+    if by_sheet:
+        vml_names = [n for n in pkg.names if n.lower().endswith(".vml")]
+        block = used_vml_blocks(pkg.read(n) or b"" for n in vml_names) + 1
+        for part, items in by_sheet.items():
+            block = _plan_notes(pkg, plan, part, items, block, overrides)
+
+    # new sheets
+    taken_names = {n.lower() for n in sheets}
+    new_sheet_els: list[str] = []
+    next_id = max(sheet_ids, default=0) + 1
+    for ns in new_sheets:
+        _check_sheet_name(ns.name, taken_names, file)
+        part = _free_part(pkg.names, "xl/worksheets/sheet{}.xml")
+        rid = wb_rel_ids.pop(0)
+        new_wb_rels.append((rid, _T_SHEET, relative_target(wb_part, part)))
+        overrides.append((part, _CT_SHEET))
+        plan.added[part] = new_sheet_xml(ns.rows, ns.col_widths, ns.links, styler, _cell_attrs)
+        any_formula = any_formula or any(
+            c is not None and c.formula is not None for row in ns.rows for c in row
+        )
+        new_sheet_els.append(
+            f'<sheet name="{esc_attr(ns.name)}" sheetId="{next_id}" r:id="{rid}"/>'
+        )
+        next_id += 1
+
+    # workbook, its relationships, content types
+    drop: list[str] = []
+    rels_data = wb_rels_data
+    if any_formula:
+        for r in wb_rels:
+            if r.type == _T_CALC:
+                drop.append(resolve_target(wb_part, r.target))
+                assert rels_data is not None
+                rels_data = remove_rel(rels_data, r.id)
+        plan.dropped.update(d for d in drop if d in pkg.names)
+    if new_wb_rels:
+        rels_data = add_rels(rels_data, new_wb_rels)
+    if rels_data != wb_rels_data and rels_data is not None:
+        plan.replaced[wb_rels_part] = rels_data
+    if new_sheet_els:
+        plan.replaced[wb_part] = _add_sheets(wb, new_sheet_els, file)
+    vml_new = any(p.lower().endswith(".vml") for p in plan.added)
+    if overrides or drop or vml_new:
+        plan.replaced["[Content_Types].xml"] = _content_types(
+            pkg.need("[Content_Types].xml"), overrides, drop, vml_new
+        )
+    return plan
+
+
+def _strict(file: str) -> WriteError:
+    return WriteError(
+        "the workbook is saved as Strict Open XML, which cannot be annotated safely; "
+        "save it as an ordinary Excel workbook (.xlsx) first",
+        file=file,
+        expected="transitional Office Open XML",
+        found="Strict Open XML",
+    )
+
+
+def _check_addition(add: SheetAddition, file: str) -> None:
+    n_set = {len(c.cells) for c in add.columns}
+    if len(n_set) > 1:
+        raise WriteError(
+            "added columns of one addition differ in length",
+            file=file,
+            sheet=add.sheet,
+            found=sorted(n_set),
+        )
+    n = n_set.pop() if n_set else 0
+    if not (1 <= add.header_row <= MAX_ROW) or not (1 <= add.first_row <= MAX_ROW):
+        raise WriteError(
+            "header_row and first_row must be sheet rows (1-based)",
+            file=file,
+            sheet=add.sheet,
+            found=(add.header_row, add.first_row),
+        )
+    if add.first_row <= add.header_row:
+        raise WriteError(
+            "the first data row must come after the header row",
+            file=file,
+            sheet=add.sheet,
+            found=(add.header_row, add.first_row),
+        )
+    if add.first_row + n - 1 > MAX_ROW:
+        raise WriteError(
+            "added cells would run past the last sheet row",
+            file=file,
+            sheet=add.sheet,
+            expected=f"at most {MAX_ROW:,} rows",
+        )
+    if add.start_col < 0 or add.start_col + len(add.columns) > MAX_COL:
+        raise WriteError(
+            "added columns would run past the last sheet column (XFD)",
+            file=file,
+            sheet=add.sheet,
+            found=add.start_col,
+        )
+
+
+def _add_sheets(wb: bytes, elements: list[str], file: str) -> bytes:
+    from sheetcycle.io.package_xml import MAIN_NS, REL_NS, ns_prefix
+
+    p = (ns_prefix(wb, MAIN_NS) or b"").decode()
+    rp = ns_prefix(wb, REL_NS)
+    text = "".join(elements)
+    if p:
+        text = text.replace("<sheet ", f"<{p}sheet ")
+    if rp is None:
+        text = text.replace(' r:id="', f' xmlns:r="{REL_NS.decode()}" r:id="')
+    elif rp != b"r:":
+        text = text.replace(' r:id="', f' {rp.decode()}id="')
+    end = wb.rfind(f"</{p}sheets>".encode())
+    if end < 0:
+        raise ReadError("workbook part has no <sheets> list", file=file)
+    return wb[:end] + text.encode() + wb[end:]
+
+
+def _plan_notes(
+    pkg: _Package,
+    plan: _Plan,
+    part: str,
+    items: list[NoteText],
+    block: int,
+    overrides: list[tuple[str, str]],
+) -> int:
+    rp = rels_path(part)
+    rels_data = plan.replaced.get(rp) or pkg.read(rp)
+    rels: list[Rel] = parse_rels(rels_data, rp, pkg.file)
+    new_rels: list[tuple[str, str, str]] = []
+    ids = free_rel_ids(rels, 2)
+    comments_rel = next((r for r in rels if r.type == _T_COMMENTS and not r.external), None)
+    comments_part = resolve_target(part, comments_rel.target) if comments_rel else None
+    old_comments = pkg.read(comments_part) if comments_part else None
+    if comments_part is None or old_comments is None:
+        comments_part = _free_part(pkg.names, "xl/comments{}.xml")
+        new_rels.append((ids.pop(0), _T_COMMENTS, relative_target(part, comments_part)))
+        overrides.append((comments_part, _CT_COMMENTS))
+        old_comments = None
+    have = existing_refs(old_comments)
+    comments = add_comments(old_comments, items)
+    (plan.replaced if old_comments is not None else plan.added)[comments_part] = comments
+    vml_part: str | None = None
+    if any(r.type == _T_VML for r in rels):
+        with pkg.zin.open(part) as fh:
+            rid = legacy_drawing_id(scan_tail(fh))
+        rel = next((r for r in rels if r.id == rid), None)
+        if rel is not None:
+            vml_part = resolve_target(part, rel.target)
+    shapes = [n for n in items if n.ref not in have]
+    next_block = block
+    if vml_part is not None and vml_part in pkg.names:
+        if shapes:
+            vml, last = add_vml(pkg.need(vml_part), shapes, block)
+            plan.replaced[vml_part] = vml
+            next_block = last + 1
+    else:
+        vml_part = _free_part(pkg.names, "xl/drawings/vmlDrawing{}.vml")
+        vml, last = add_vml(None, shapes, block)
+        next_block = last + 1
+        rid = ids.pop(0)
+        new_rels.append((rid, _T_VML, relative_target(part, vml_part)))
+        plan.added[vml_part] = vml
+        plan.jobs[part].legacy_rid = rid
+    if new_rels:
+        target = plan.replaced if rels_data is not None else plan.added
+        target[rp] = add_rels(rels_data, new_rels)
+    return next_block
+
+
+# --- writing ----------------------------------------------------------------------------
+
+
+class _Out:
+    def __init__(self, zin: zipfile.ZipFile, zout: zipfile.ZipFile) -> None:
+        self.zin = zin
+        self.zout = zout
+
+    def put(self, name: str, data: bytes, like: zipfile.ZipInfo | None) -> None:
+        stamp = like.date_time if like else time.localtime()[:6]
+        info = zipfile.ZipInfo(name, date_time=stamp)
+        info.compress_type = like.compress_type if like else zipfile.ZIP_DEFLATED
+        if like is not None:
+            info.external_attr = like.external_attr
+        self.zout.writestr(info, data)
+
+    def stream(self, job: SheetJob, like: zipfile.ZipInfo, styler: CellStyler, file: str) -> None:
+        info = zipfile.ZipInfo(like.filename, date_time=like.date_time)
+        info.compress_type = like.compress_type
+        info.external_attr = like.external_attr
+        n_new = sum(n * len(cols) for _, n, cols in job.blocks)
+        big = like.file_size + 120 * n_new > 2 * 1024**3
+        rewriter = SheetRewriter(job, styler, file, _cell_attrs)
+        with self.zin.open(like) as src, self.zout.open(info, "w", force_zip64=big) as dst:
+            rewriter.run(src, dst.write)
+
+
+def _write(pkg: _Package, plan: _Plan, tmp: Path) -> None:
+    assert plan.styles is not None
+    styler = CellStyler(plan.styles, FILLS)
+    infos = pkg.zin.infolist()
+    order = [i.filename for i in infos]
+    last_job = max((order.index(p) for p in plan.jobs), default=-1)
+    styles_info: zipfile.ZipInfo | None = None
+    with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zout:
+        out = _Out(pkg.zin, zout)
+        for k, info in enumerate(infos):
+            name = info.filename
+            if name in plan.dropped:
+                continue
+            if name in plan.jobs:
+                out.stream(plan.jobs[name], info, styler, pkg.file)
+            elif name == plan.styles_part:
+                if k > last_job:
+                    out.put(name, plan.styles.render(), info)
+                else:
+                    styles_info = info
+                    continue
+            elif name in plan.replaced:
+                out.put(name, plan.replaced[name], info)
+            else:
+                copy_raw(pkg.zin, zout, info)
+            if k == last_job and styles_info is not None:
+                out.put(styles_info.filename, plan.styles.render(), styles_info)
+                styles_info = None
+        if plan.styles_part not in pkg.names:
+            out.put(plan.styles_part, plan.styles.render(), None)
+        for name, data in plan.added.items():
+            out.put(name, data, None)
+
+
+def write_annotated(
+    src: Path,
+    dst: Path,
+    *,
+    additions: Sequence[SheetAddition] = (),
+    notes: Sequence[CellNote] = (),
+    new_sheets: Sequence[NewSheet] = (),
+    force: bool = False,
+) -> None:
+    """Write ``dst``: the workbook ``src`` with the additions, notes and new sheets.
+
+    Raises :class:`WriteError` (nothing written) for inputs that cannot be annotated:
+    other file types, encrypted or Strict Open XML workbooks, unknown sheets, taken sheet
+    names, added cells landing on occupied or merged cells, an existing ``dst`` without
+    ``force``; :class:`ReadError` for a damaged package.
+    """
+    src, dst = Path(src), Path(dst)
+    _check_kind(src, dst)
+    try:
+        zin = zipfile.ZipFile(src)
+    except (zipfile.BadZipFile, OSError) as exc:
+        raise ReadError(f"cannot open the workbook package ({exc})", file=str(src)) from exc
+    with zin:
+        if any(i.flag_bits & 0x1 for i in zin.infolist()):
+            raise WriteError("the package has encrypted zip entries", file=str(src))
+        check_zip(src, zin, Limits())
+        pkg = _Package(src, zin)
+        plan = _plan(pkg, additions, notes, new_sheets)
+        with atomic_output(dst, force=force, inputs=[src]) as tmp:
+            try:
+                _write(pkg, plan, tmp)
+            except zipfile.BadZipFile as exc:
+                raise ReadError(f"damaged workbook package ({exc})", file=str(src)) from exc

@@ -1,0 +1,141 @@
+"""The new cells, rows and sheets the package writer adds, as worksheet XML bytes.
+
+Text goes in as inline strings (``t="inlineStr"``) so the shared-string table stays as it
+was, and text is always text: a message that starts with ``=`` is never a formula. A
+formula cell carries its cached value (``<v>``): a number, or ``t="str"`` for text.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+
+from sheetcycle.io.package_styles import StyleBook
+from sheetcycle.io.package_xml import col_letters, esc_attr, esc_text
+
+__all__ = ["CellStyler", "cell_xml", "new_sheet_xml"]
+
+#: Severity -> fill colour '#RRGGBB'.
+FillMap = Mapping[str, str]
+
+
+def _num(v: float) -> str:
+    return repr(float(v))
+
+
+def _t(p: str, text: str) -> str:
+    space = ' xml:space="preserve"' if text != text.strip() or "\n" in text else ""
+    return f"<{p}t{space}>{esc_text(text)}</{p}t>"
+
+
+def cell_xml(p: str, ref: str, s: int | None, value: object, formula: str | None) -> str:
+    """One <c> element ('' for a blank cell without a format)."""
+    sa = f' s="{s}"' if s else ""
+    if formula is not None:
+        f = f"<{p}f>{esc_text(formula)}</{p}f>"
+        if value is None:
+            return f'<{p}c r="{ref}"{sa}>{f}</{p}c>'
+        if isinstance(value, bool):
+            return f'<{p}c r="{ref}"{sa} t="b">{f}<{p}v>{int(value)}</{p}v></{p}c>'
+        if isinstance(value, str):
+            return f'<{p}c r="{ref}"{sa} t="str">{f}<{p}v>{esc_text(value)}</{p}v></{p}c>'
+        x = float(value)  # type: ignore[arg-type]
+        if math.isfinite(x):
+            return f'<{p}c r="{ref}"{sa}>{f}<{p}v>{_num(x)}</{p}v></{p}c>'
+        return f'<{p}c r="{ref}"{sa} t="e">{f}<{p}v>#NUM!</{p}v></{p}c>'
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return f'<{p}c r="{ref}"{sa}/>' if sa else ""
+    if isinstance(value, str):
+        return f'<{p}c r="{ref}"{sa} t="inlineStr"><{p}is>{_t(p, value)}</{p}is></{p}c>'
+    if isinstance(value, bool):
+        return f'<{p}c r="{ref}"{sa} t="b"><{p}v>{int(value)}</{p}v></{p}c>'
+    return f'<{p}c r="{ref}"{sa}><{p}v>{_num(value)}</{p}v></{p}c>'  # type: ignore[arg-type]
+
+
+@dataclass
+class CellStyler:
+    """Turns a cell's style name into a cell format index, appending formats on demand."""
+
+    styles: StyleBook
+    fills: FillMap
+
+    def header(self) -> int:
+        return self.styles.xf(font=self.styles.font("bold"), fill=self.styles.fill("#EEEEEE"))
+
+    def named(self, style: str | None, *, numeric: bool, number_xf: int, link: bool = False) -> int:
+        """Format for style name ``style``; ``number_xf`` is the format numbers get."""
+        st = self.styles
+        if style is None:
+            if link:
+                return st.xf(font=st.font("link"))
+            return number_xf if numeric else 0
+        if style == "header":
+            return self.header()
+        if style == "number":
+            return number_xf
+        if style == "text":
+            return st.xf(wrap=True)
+        if style in self.fills:
+            return st.with_fill(number_xf if numeric else None, self.fills[style])
+        raise ValueError(f"unknown cell style {style!r}")
+
+
+def _is_numeric(value: object, formula: str | None) -> bool:
+    return formula is not None or (value is not None and not isinstance(value, str))
+
+
+def new_sheet_xml(
+    rows: Sequence[Sequence[object | None]],
+    col_widths: Sequence[float],
+    links: Mapping[tuple[int, int], str],
+    styler: CellStyler,
+    cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
+) -> bytes:
+    """A complete worksheet part for a new sheet (no prefix, inline strings)."""
+    number_xf = 0
+    out: list[str] = [
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        '<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main" '
+        'xmlns:r="http://schemas.openxmlformats.org/officeDocument/2006/relationships">'
+    ]
+    width = max((len(r) for r in rows), default=0)
+    height = len(rows)
+    last = f"{col_letters(max(width, 1) - 1)}{max(height, 1)}"
+    out.append(
+        f'<dimension ref="A1:{last}"/>' if (width > 1 or height > 1) else '<dimension ref="A1"/>'
+    )
+    out.append('<sheetViews><sheetView workbookViewId="0"/></sheetViews>')
+    out.append('<sheetFormatPr defaultRowHeight="15"/>')
+    if col_widths:
+        out.append("<cols>")
+        for i, w in enumerate(col_widths):
+            out.append(f'<col min="{i + 1}" max="{i + 1}" width="{float(w):g}" customWidth="1"/>')
+        out.append("</cols>")
+    out.append("<sheetData>")
+    for r0, row in enumerate(rows):
+        cells: list[str] = []
+        for c0, cell in enumerate(row):
+            if cell is None:
+                continue
+            value, formula, style = cell_attrs(cell)
+            link = (r0, c0) in links
+            s = styler.named(
+                style, numeric=_is_numeric(value, formula), number_xf=number_xf, link=link
+            )
+            cells.append(cell_xml("", f"{col_letters(c0)}{r0 + 1}", s, value, formula))
+        if cells:
+            out.append(f'<row r="{r0 + 1}">{"".join(cells)}</row>')
+    out.append("</sheetData>")
+    if links:
+        out.append("<hyperlinks>")
+        for (r0, c0), target in sorted(links.items()):
+            out.append(
+                f'<hyperlink ref="{col_letters(c0)}{r0 + 1}" location="{esc_attr(target)}"/>'
+            )
+        out.append("</hyperlinks>")
+    out.append(
+        '<pageMargins left="0.7" right="0.7" top="0.75" bottom="0.75" header="0.3" footer="0.3"/>'
+    )
+    out.append("</worksheet>")
+    return "".join(out).encode("utf-8")

@@ -1,0 +1,587 @@
+"""Streaming edit of one worksheet part: new cells to the right, fills on noted cells.
+
+The sheet XML is read in chunks and written row by row; no DOM is ever built, so a full
+1,048,576-row sheet passes in bounded memory. Existing cells are copied byte for byte;
+the only change to an existing cell is the ``s`` (format) attribute of a noted cell.
+New cells are inserted in column order within their ``<row>``; rows that do not exist are
+created in row order. ``spans``, ``<dimension>`` and ``<cols>`` are updated, and a
+``<legacyDrawing>`` element is added when the notes need a new VML part.
+"""
+
+from __future__ import annotations
+
+import bisect
+import re
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+from typing import IO
+
+from sheetcycle.errors import ReadError, WriteError
+from sheetcycle.io.package_cells import CellStyler, cell_xml
+from sheetcycle.io.package_xml import (
+    MAIN_NS,
+    REL_NS,
+    attr,
+    col_index,
+    col_letters,
+    ns_prefix,
+    parse_range,
+    set_attr,
+)
+
+__all__ = ["ColumnJob", "SheetJob", "SheetRewriter", "find_cell_styles", "scan_tail"]
+
+CHUNK = 4 * 1024 * 1024
+_INF = 1 << 62
+
+# Children of <worksheet> that come after <legacyDrawing> (CT_Worksheet order).
+_AFTER_LEGACY = {
+    b"legacyDrawingHF",
+    b"drawingHF",
+    b"picture",
+    b"oleObjects",
+    b"controls",
+    b"webPublishItems",
+    b"tableParts",
+    b"extLst",
+}
+
+
+@dataclass
+class ColumnJob:
+    """One added column, with its formats resolved."""
+
+    col: int  # 0-based
+    header: str
+    cells: object  # Sequence[AddedCell]
+    width: float
+    number_xf: int
+    header_xf: int
+
+
+@dataclass
+class SheetJob:
+    """Everything to do to one existing worksheet part."""
+
+    sheet: str
+    part: str
+    header_rows: dict[int, list[ColumnJob]] = field(default_factory=dict)
+    blocks: list[tuple[int, int, list[ColumnJob]]] = field(default_factory=list)  # first, n, cols
+    notes: dict[int, dict[int, str]] = field(default_factory=dict)  # row -> col -> fill rgb
+    legacy_rid: str | None = None  # add <legacyDrawing r:id=...> with this id
+
+    def columns(self) -> list[ColumnJob]:
+        out = [c for cols in self.header_rows.values() for c in cols]
+        return sorted({c.col: c for c in out}.values(), key=lambda c: c.col)
+
+    def note_rows(self) -> list[int]:
+        return sorted(self.notes)
+
+    def rects(self, *, notes: bool = True) -> list[tuple[int, int, int, int]]:
+        """Rectangles (row1, col1, row2, col2) that get new cells (or fills)."""
+        out = []
+        for row, cols in self.header_rows.items():
+            out.append((row, min(c.col for c in cols), row, max(c.col for c in cols)))
+        for first, n, cols in self.blocks:
+            if n:
+                out.append(
+                    (first, min(c.col for c in cols), first + n - 1, max(c.col for c in cols))
+                )
+        for row, cols in (self.notes if notes else {}).items():
+            for col in cols:
+                out.append((row, col, row, col))
+        return out
+
+
+def _chunks(stream: IO[bytes]) -> Iterator[bytes]:
+    while True:
+        data = stream.read(CHUNK)
+        if not data:
+            return
+        yield data
+
+
+def _prefix(head: bytes) -> bytes:
+    p = ns_prefix(head, MAIN_NS)
+    return b"" if p is None else p
+
+
+def scan_tail(stream: IO[bytes]) -> bytes:
+    """The part of a sheet after </sheetData> (read through without keeping the rows)."""
+    carry = b""
+    tail: bytes | None = None
+    p: bytes | None = None
+    for chunk in _chunks(stream):
+        if tail is not None:
+            tail += chunk
+            continue
+        buf = carry + chunk
+        if p is None:
+            p = _prefix(buf[:65536])
+        m = re.search(
+            rb"</" + re.escape(p) + rb"sheetData>|<" + re.escape(p) + rb"sheetData\b[^>]*/>", buf
+        )
+        if m:
+            tail = buf[m.end() :]
+        else:
+            carry = buf[-64:]
+    return tail or b""
+
+
+def legacy_drawing_id(tail: bytes) -> str | None:
+    m = re.search(rb"<(?:[\w.-]+:)?legacyDrawing\b([^>]*)>", tail)
+    if not m:
+        return None
+    rid = re.search(rb":id\s*=\s*[\"']([^\"']*)", m.group(1))
+    return rid.group(1).decode() if rid else None
+
+
+def find_cell_styles(stream: IO[bytes], refs: set[tuple[int, int]]) -> dict[tuple[int, int], int]:
+    """The ``s`` of cells (row, col) in the first rows of a sheet; stops past the last."""
+    found: dict[tuple[int, int], int] = {}
+    if not refs:
+        return found
+    last_row = max(r for r, _ in refs)
+    buf = b""
+    p: bytes | None = None
+    prev = 0
+    for chunk in _chunks(stream):
+        buf += chunk
+        if p is None:
+            p = _prefix(buf[:65536])
+            row_re = _row_re(p)
+        pos = 0
+        for m in row_re.finditer(buf):
+            pos = m.end()
+            r_raw = attr(m.group(1), b"r")
+            r = int(r_raw) if r_raw else prev + 1
+            prev = r
+            if r > last_row:
+                return found
+            if any(rr == r for rr, _ in refs) and m.group(2):
+                for col, ts, te, _start, _end, _has in _scan_cells(m.group(2), p):
+                    if (r, col) in refs:
+                        s = attr(m.group(2)[ts:te], b"s")
+                        found[(r, col)] = int(s) if s else 0
+        buf = buf[pos:]
+    return found
+
+
+def _row_re(p: bytes) -> re.Pattern[bytes]:
+    q = re.escape(p)
+    return re.compile(rb"<" + q + rb"row(?=[\s>/])([^>]*?)(?:/>|>(.*?)</" + q + rb"row>)", re.S)
+
+
+def _cell_re(p: bytes) -> re.Pattern[bytes]:
+    return re.compile(rb"<" + re.escape(p) + rb"c(?=[\s>/])[^>]*?(/?)>")
+
+
+_CELL_RES: dict[bytes, re.Pattern[bytes]] = {}
+_CONTENT_RES: dict[bytes, re.Pattern[bytes]] = {}
+
+
+def _scan_cells(body: bytes, p: bytes) -> list[tuple[int, int, int, int, int, bool]]:
+    """(col, tag_start, tag_end, start, end, has_content) for each <c> in a row body."""
+    cre = _CELL_RES.get(p) or _CELL_RES.setdefault(p, _cell_re(p))
+    content = _CONTENT_RES.get(p) or _CONTENT_RES.setdefault(
+        p, re.compile(rb"<" + re.escape(p) + rb"(?:v|f|is)\b")
+    )
+    close = b"</" + p + b"c>"
+    out = []
+    pos = 0
+    col = -1
+    while True:
+        m = cre.search(body, pos)
+        if not m:
+            return out
+        tag = m.group()
+        r = attr(tag, b"r")
+        col = col_index(re.sub(rb"[0-9$]", b"", r).decode()) if r else col + 1
+        if m.group(1):
+            end = m.end()
+            has = False
+        else:
+            k = body.find(close, m.end())
+            if k < 0:
+                raise ReadError("a worksheet cell element is not closed", found=tag[:60].decode())
+            end = k + len(close)
+            has = content.search(body, m.end(), k) is not None
+        out.append((col, m.start(), m.end(), m.start(), end, has))
+        pos = end
+
+
+class SheetRewriter:
+    """Stream one worksheet part through, adding cells."""
+
+    def __init__(
+        self,
+        job: SheetJob,
+        styler: CellStyler,
+        file: str,
+        cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
+    ) -> None:
+        self.job = job
+        self.styler = styler
+        self.file = file
+        self.cell_attrs = cell_attrs
+        self.p = b""
+        self._root = b""
+        self.note_rows = job.note_rows()
+        self.cols = job.columns()
+        self.block_cols = {id(cols): cols for _, _, cols in job.blocks}
+        self.add_cols = {c.col for c in self.cols}
+
+    # --- which rows get something ---------------------------------------------------
+
+    def next_target(self, x: int) -> int:
+        best = _INF
+        for row in self.job.header_rows:
+            if x <= row < best:
+                best = row
+        for first, n, _ in self.job.blocks:
+            if x < first + n:
+                best = min(best, max(x, first))
+        k = bisect.bisect_left(self.note_rows, x)
+        if k < len(self.note_rows):
+            best = min(best, self.note_rows[k])
+        return best
+
+    def adds_for(self, r: int) -> list[tuple[int, str]]:
+        out: list[tuple[int, str]] = []
+        p = self.p.decode()
+        notes = self.job.notes.get(r)
+        for col in self.job.header_rows.get(r, ()):
+            s = col.header_xf
+            if notes and col.col in notes:
+                s = self.styler.styles.with_fill(s, notes[col.col])
+            out.append((col.col, cell_xml(p, f"{col_letters(col.col)}{r}", s, col.header, None)))
+        for first, n, cols in self.job.blocks:
+            if first <= r < first + n:
+                i = r - first
+                for col in cols:
+                    value, formula, style = self.cell_attrs(col.cells[i])  # type: ignore[index]
+                    numeric = formula is not None or (
+                        value is not None and not isinstance(value, str)
+                    )
+                    s = self.styler.named(style, numeric=numeric, number_xf=col.number_xf)
+                    if notes and col.col in notes:
+                        s = self.styler.styles.with_fill(s, notes[col.col])
+                    out.append(
+                        (col.col, cell_xml(p, f"{col_letters(col.col)}{r}", s, value, formula))
+                    )
+        if len(out) > 1 and any(out[k][0] > out[k + 1][0] for k in range(len(out) - 1)):
+            out.sort(key=lambda t: t[0])
+        return out
+
+    # --- rows ---------------------------------------------------------------------
+
+    def new_row(self, r: int) -> bytes:
+        adds = self.adds_for(r)
+        p = self.p.decode()
+        notes = self.job.notes.get(r, {})
+        have = {c for c, _ in adds}
+        for col, rgb in notes.items():
+            if col not in have:
+                s = self.styler.styles.with_fill(None, rgb)
+                adds.append((col, cell_xml(p, f"{col_letters(col)}{r}", s, None, None)))
+        adds.sort(key=lambda t: t[0])
+        body = "".join(x for _, x in adds)
+        return f'<{p}row r="{r}">{body}</{p}row>'.encode()
+
+    def edit_row(self, attrs: bytes, body: bytes | None, r: int) -> bytes:
+        p = self.p
+        adds = [(c, x.encode()) for c, x in self.adds_for(r) if x]
+        notes = self.job.notes.get(r)
+        if body is None:
+            body = b""
+        cells_needed = bool(notes)
+        tail_pos = body.find(b"<" + p + b"extLst")
+        if tail_pos < 0:
+            tail_pos = len(body)
+        if adds and not cells_needed:
+            last = self._last_col(body)
+            cells_needed = last is None or last >= adds[0][0]
+        if not cells_needed:
+            new_body = body[:tail_pos] + b"".join(x for _, x in adds) + body[tail_pos:]
+        else:
+            new_body = self._merge(body, tail_pos, adds, notes or {}, r)
+        if adds:
+            attrs = self._spans(attrs, adds[0][0], adds[-1][0])
+        return b"<" + p + b"row" + attrs + b">" + new_body + b"</" + p + b"row>"
+
+    def _last_col(self, body: bytes) -> int | None:
+        p = self.p
+        k = body.rfind(b"<" + p + b"c ")
+        if max(body.rfind(b"<" + p + b"c>"), body.rfind(b"<" + p + b"c/>")) > k:
+            return None
+        if k < 0:
+            return -1
+        gt = body.find(b">", k)
+        r = attr(body[k : gt + 1], b"r")
+        if r is None:
+            return None
+        return col_index(re.sub(rb"[0-9$]", b"", r).decode())
+
+    def _merge(
+        self,
+        body: bytes,
+        tail_pos: int,
+        adds: list[tuple[int, bytes]],
+        notes: dict[int, str],
+        r: int,
+    ) -> bytes:
+        p = self.p
+        cells = _scan_cells(body[:tail_pos], p)
+        existing = {c[0] for c in cells}
+        add_cols = {c for c, _ in adds}
+        for col, rgb in notes.items():
+            if col not in existing and col not in add_cols:
+                s = self.styler.styles.with_fill(None, rgb)
+                adds.append(
+                    (col, cell_xml(p.decode(), f"{col_letters(col)}{r}", s, None, None).encode())
+                )
+        adds.sort(key=lambda t: t[0])
+        out: list[bytes] = []
+        pos = 0
+        ai = 0
+        for col, ts, te, start, end, has in cells:
+            out.append(body[pos:start])
+            pos = start
+            while ai < len(adds) and adds[ai][0] < col:
+                out.append(adds[ai][1])
+                ai += 1
+            if col in add_cols:
+                if has:
+                    ref = f"{col_letters(col)}{r}"
+                    raise WriteError(
+                        f"an added column would overwrite the occupied cell {ref}",
+                        file=self.file,
+                        sheet=self.job.sheet,
+                        cell=ref,
+                        expected="an empty column to the right of the table",
+                    )
+                out.append(adds[ai][1])  # replaces the blank (format-only) cell
+                ai += 1
+                pos = end
+                continue
+            if col in notes:
+                tag = body[ts:te]
+                old = attr(tag, b"s")
+                s = self.styler.styles.with_fill(int(old) if old else None, notes[col])
+                out.append(set_attr(tag, b"s", str(s).encode()))
+                pos = te
+        out.append(body[pos:tail_pos])
+        out.extend(x for _, x in adds[ai:])
+        out.append(body[tail_pos:])
+        return b"".join(out)
+
+    @staticmethod
+    def _spans(attrs: bytes, lo_col: int, hi_col: int) -> bytes:
+        spans = attr(attrs, b"spans")
+        if spans is None:
+            return attrs
+        try:
+            bounds = [int(x) for part in spans.split() for x in part.split(b":")]
+        except ValueError:
+            return attrs
+        lo = min([*bounds, lo_col + 1])
+        hi = max([*bounds, hi_col + 1])
+        tag = set_attr(b"<row" + attrs + b">", b"spans", f"{lo}:{hi}".encode())
+        return tag[4:-1]
+
+    # --- the whole part -----------------------------------------------------------
+
+    def run(self, stream: IO[bytes], write: Callable[[bytes], object]) -> None:
+        chunks = _chunks(stream)
+        buf = b""
+        for chunk in chunks:
+            buf += chunk
+            self.p = _prefix(buf[:65536])
+            self._root = buf[:65536]
+            m = re.search(rb"<" + re.escape(self.p) + rb"sheetData(?=[\s>/])[^>]*?(/?)>", buf)
+            if m:
+                break
+        else:
+            raise ReadError(
+                "worksheet part has no <sheetData>", file=self.file, sheet=self.job.sheet
+            )
+        p = self.p
+        write(self._head(buf[: m.start()]))
+        end_tag = b"</" + p + b"sheetData>"
+        if m.group(1):  # <sheetData/>
+            write(b"<" + p + b"sheetData>")
+            self._missing(0, _INF, write)
+            write(end_tag)
+            rest = buf[m.end() :] + b"".join(chunks)
+            write(self._tail(rest))
+            return
+        write(m.group())
+        buf = buf[m.end() :]
+        row_re = _row_re(p)
+        prev = 0
+        out: list[bytes] = []
+        size = 0
+        while True:
+            end_idx = buf.find(end_tag)
+            limit = end_idx if end_idx >= 0 else len(buf)
+            last = 0
+            for rm in row_re.finditer(buf, 0, limit):
+                attrs = rm.group(1)
+                r_raw = attr(attrs, b"r")
+                r = int(r_raw) if r_raw else prev + 1
+                gap = buf[last : rm.start()]
+                if gap:
+                    out.append(gap)
+                if self.next_target(prev + 1) < r:
+                    self._missing(prev, r, out.append)
+                if self.next_target(r) == r:
+                    piece = self.edit_row(attrs, rm.group(2), r)
+                else:
+                    piece = rm.group()
+                out.append(piece)
+                size += len(piece)
+                prev = r
+                last = rm.end()
+            if size > CHUNK:
+                write(b"".join(out))
+                out.clear()
+                size = 0
+            if end_idx >= 0:
+                out.append(buf[last:end_idx])
+                self._missing(prev, _INF, out.append)
+                out.append(end_tag)
+                write(b"".join(out))
+                rest = buf[end_idx + len(end_tag) :] + b"".join(chunks)
+                write(self._tail(rest))
+                return
+            buf = buf[last:]
+            more = next(chunks, None)
+            if more is None:
+                raise ReadError(
+                    "worksheet part ends inside <sheetData>", file=self.file, sheet=self.job.sheet
+                )
+            buf += more
+
+    def _missing(self, after: int, before: int, write: Callable[[bytes], object]) -> None:
+        t = self.next_target(after + 1)
+        while t < before:
+            write(self.new_row(t))
+            t = self.next_target(t + 1)
+
+    def _head(self, head: bytes) -> bytes:
+        p = self.p
+        q = re.escape(p)
+        rects = self.job.rects()
+        if rects:
+            m = re.search(rb"<" + q + rb"dimension\b[^>]*?/>", head)
+            if m:
+                ref = attr(m.group(), b"ref")
+                r1 = min(r[0] for r in rects)
+                c1 = min(r[1] for r in rects)
+                r2 = max(r[2] for r in rects)
+                c2 = max(r[3] for r in rects)
+                if ref:
+                    try:
+                        a = parse_range(ref.decode())
+                        r1, c1, r2, c2 = min(r1, a[0]), min(c1, a[1]), max(r2, a[2]), max(c2, a[3])
+                    except ValueError:
+                        pass
+                new_ref = f"{col_letters(c1)}{r1}:{col_letters(c2)}{r2}".encode()
+                tag = set_attr(m.group(), b"ref", new_ref)
+                head = head[: m.start()] + tag + head[m.end() :]
+        if self.cols:
+            head = self._cols(head)
+        return head
+
+    def _cols(self, head: bytes) -> bytes:
+        p = self.p
+        q = re.escape(p)
+        m = re.search(rb"<" + q + rb"cols\b[^>]*?(?:/>|>(.*?)</" + q + rb"cols>)", head, re.S)
+        elems: list[tuple[int, int, bytes]] = []
+        if m and m.group(1):
+            for em in re.finditer(rb"<" + q + rb"col\b[^>]*?/>", m.group(1)):
+                lo = int(attr(em.group(), b"min") or 1)
+                hi = int(attr(em.group(), b"max") or lo)
+                elems.append((lo, hi, em.group()))
+        for cj in self.cols:
+            c = cj.col + 1
+            new = f'<{p.decode()}col min="{c}" max="{c}" width="{cj.width:g}" customWidth="1"/>'
+            new_b = new.encode()
+            for k, (lo, hi, el) in enumerate(elems):
+                if lo <= c <= hi:
+                    style = attr(el, b"style")
+                    if style is not None:
+                        new_b = set_attr(new_b, b"style", style)
+                    pieces = []
+                    if lo < c:
+                        pieces.append((lo, c - 1, _minmax(el, lo, c - 1)))
+                    pieces.append((c, c, new_b))
+                    if c < hi:
+                        pieces.append((c + 1, hi, _minmax(el, c + 1, hi)))
+                    elems[k : k + 1] = pieces
+                    break
+            else:
+                elems.append((c, c, new_b))
+        elems.sort(key=lambda e: e[0])
+        block = b"<" + p + b"cols>" + b"".join(e[2] for e in elems) + b"</" + p + b"cols>"
+        if m:
+            return head[: m.start()] + block + head[m.end() :]
+        return head + block  # head ends right before <sheetData>
+
+    def _tail(self, tail: bytes) -> bytes:
+        rects = self.job.rects(notes=False)
+        for mm in re.finditer(rb"<(?:[\w.-]+:)?mergeCell\b[^>]*?/?>", tail):
+            ref = attr(mm.group(), b"ref")
+            if not ref:
+                continue
+            try:
+                a = parse_range(ref.decode())
+            except ValueError:
+                continue
+            for rr in rects:
+                if rr[0] <= a[2] and a[0] <= rr[2] and rr[1] <= a[3] and a[1] <= rr[3]:
+                    if a[:2] == a[2:]:
+                        continue
+                    row, col = max(rr[0], a[0]), max(rr[1], a[1])
+                    ref_txt = f"{col_letters(col)}{row}"
+                    raise WriteError(
+                        f"an added cell would land inside the merged range {ref.decode()}",
+                        file=self.file,
+                        sheet=self.job.sheet,
+                        cell=ref_txt,
+                        expected="an empty, unmerged area to the right of the table",
+                    )
+        if self.job.legacy_rid is None:
+            return tail
+        pos = _top_level_pos(tail, _AFTER_LEGACY)
+        rp = ns_prefix(self._root, REL_NS)
+        rid = self.job.legacy_rid
+        if rp is None:
+            el = (
+                f'<{self.p.decode()}legacyDrawing xmlns:r="{REL_NS.decode()}" r:id="{rid}"/>'
+            ).encode()
+        else:
+            el = f'<{self.p.decode()}legacyDrawing {rp.decode()}id="{rid}"/>'.encode()
+        return tail[:pos] + el + tail[pos:]
+
+
+def _minmax(el: bytes, lo: int, hi: int) -> bytes:
+    return set_attr(set_attr(el, b"min", str(lo).encode()), b"max", str(hi).encode())
+
+
+def _top_level_pos(tail: bytes, names: set[bytes]) -> int:
+    """Offset of the first top-level element named in ``names`` (else of </worksheet>)."""
+    depth = 0
+    for m in re.finditer(rb"<(/?)([\w.:-]+)[^>]*?(/?)>", tail):
+        closing, name, empty = m.group(1), m.group(2), m.group(3)
+        local = name.split(b":")[-1]
+        if closing:
+            if depth == 0:  # </worksheet>
+                return m.start()
+            depth -= 1
+            continue
+        if depth == 0 and local in names:
+            return m.start()
+        if not empty:
+            depth += 1
+    return len(tail)
