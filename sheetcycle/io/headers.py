@@ -655,12 +655,27 @@ def split_header(text: str) -> tuple[str, str | None]:
         return _tidy(text), None
 
 
+#: Words that say where a value came from, not what it is ('ΔLH lit.', 'ΔfH (exp.)'):
+#: a header that is recognised once they are taken out is read without them.
+_PROVENANCE = re.compile(
+    r"[ ,;/_-]*\(?\b(?:lit|literature|exp|expt|experimental|measured|meas|calc|calcd|"
+    r"calculated|ref|tabulated|tab|obs|observed|est|estimated|published|handbook)\b\.?\)?",
+    re.IGNORECASE,
+)
+
+
 def recognise(text: str) -> HeaderMatch | None:
     """The quantity a header names, or None when it is not recognised (see :func:`explain`)."""
     if not isinstance(text, str):
         return None
     label, unit = split_header(text)
     match = _match_label(label)
+    if match is None:
+        bare = _PROVENANCE.sub(" ", label).strip(" ,;")
+        if bare and bare != label.strip():
+            match = _match_label(bare)
+            if match is not None and unit is None:
+                unit = split_header(bare)[1]
     if match is None:
         return None
     if unit is None:
