@@ -150,17 +150,25 @@ def numeric_cells(cells: Iterable[object]) -> tuple[np.ndarray, np.ndarray, dict
     return np.asarray(vals, dtype=float), np.asarray(uncs, dtype=float), reasons
 
 
-def _score(row: Sequence[object]) -> tuple[int, list[HeaderMatch | None]]:
+def _score(row: Sequence[object], sheet: str,
+           overrides: Sequence[ColumnOverride]) -> tuple[int, list[HeaderMatch | None]]:
+    """How much a row looks like a header: recognised columns, counting the user's overrides."""
     matches = [recognise(t) if (t := _text(v)) else None for v in row]
-    anchored = any(m is not None and m.quantity in ANCHORS for m in matches)
-    n = sum(1 for m in matches if m is not None and not m.uncertainty)
+    said = [next((o.quantity for o in overrides
+                  if o.quantity and o.quantity != "ignore" and o.applies(sheet, c, _text(v) or "")),
+                 None) for c, v in enumerate(row)]
+    quantities = [q or (m.quantity if m is not None and not m.uncertainty else None)
+                  for q, m in zip(said, matches, strict=True)]
+    anchored = any(q in ANCHORS for q in quantities)
+    n = sum(1 for q in quantities if q is not None)
     return (n if anchored and n >= 2 else 0), matches
 
 
-def _find_header(rows: Sequence[Sequence[object]], start: int) -> tuple[int, list[HeaderMatch | None]] | None:
+def _find_header(rows: Sequence[Sequence[object]], start: int, sheet: str,
+                 overrides: Sequence[ColumnOverride]) -> tuple[int, list[HeaderMatch | None]] | None:
     best: tuple[int, int, list[HeaderMatch | None]] | None = None
     for r in range(start, min(start + HEADER_SEARCH_ROWS, len(rows))):
-        s, matches = _score(rows[r])
+        s, matches = _score(rows[r], sheet, overrides)
         if s and (best is None or s > best[0]):
             best = (s, r, matches)
     return (best[1], best[2]) if best else None
@@ -201,7 +209,7 @@ def find_tables(
 ) -> tuple[list[Table], list[Flag]]:
     """The compound (or element) tables of one sheet, and the flags about their columns."""
     rows = sheet.rows
-    found = _find_header(rows, 0)
+    found = _find_header(rows, 0, sheet.name, overrides)
     if found is None:
         return [], []
     hr, matches = found
