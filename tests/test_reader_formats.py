@@ -48,7 +48,7 @@ def test_csv_with_bom_and_commas(tmp_path: Path) -> None:
 
 
 def test_xls_values(tmp_path: Path) -> None:
-    xlwt = pytest.importorskip("xlwt")  # test dependency: writes the legacy .xls format
+    import xlwt  # test dependency: writes the legacy .xls format
     wb = xlwt.Workbook()
     ws = wb.add_sheet("Salts")
     for r, row in enumerate(ROWS):
