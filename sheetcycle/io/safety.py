@@ -1,0 +1,194 @@
+"""Guards for reading untrusted workbook packages (zip files of XML parts).
+
+No spreadsheet library limits zip expansion, so a small file can unpack to gigabytes.
+:func:`check_zip` looks at the central directory before anything is parsed, and
+:func:`open_member` counts the bytes actually inflated, because zip headers can lie.
+XML parts are refused when they carry a document type declaration (the door to entity
+expansion and external entities), and lxml parsers are built without entity resolution
+or network access.
+
+Default limits, measured here on sheet XML as xlsxwriter and Excel write it:
+
+* ``max_total_uncompressed`` = 2 GiB. A 100,000 × 8 sheet of numbers is 36.9 MB of XML
+  (46 bytes a cell); a full 1,048,576-row × 8-column sheet is about 402 MB, so the
+  default passes it with five-fold margin (about 40 numeric columns at 1,048,576 rows).
+* ``max_ratio`` = 100:1, checked only for members above 1 MiB uncompressed. Real sheet
+  XML compresses 3.5:1 (random numbers) to about 15:1 (styled blanks, zeros, shared
+  formulas: the row numbers in every cell keep it from compressing further); a zip bomb
+  runs at 1000:1 and more.
+* ``max_entries`` = 10,000 parts (a workbook with a few hundred sheets and their
+  drawings has well under 2,000).
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import zipfile
+from dataclasses import dataclass
+from typing import IO
+
+from sheetcycle.errors import ReadError
+
+__all__ = [
+    "RATIO_CHECK_ABOVE",
+    "CountingReader",
+    "Limits",
+    "check_xml_head",
+    "check_zip",
+    "open_member",
+    "read_member",
+    "safe_parser",
+]
+
+RATIO_CHECK_ABOVE = 1024 * 1024  # members smaller than this are not ratio-checked
+_RAISE_HINT = "raise it with --max-unzipped-size if the file is trusted"
+
+
+@dataclass(frozen=True)
+class Limits:
+    """How much a workbook package may expand before it is refused as unsafe."""
+
+    max_entries: int = 10_000
+    max_total_uncompressed: int = 2 * 1024**3
+    max_ratio: float = 100.0
+
+
+def _mib(n: int) -> str:
+    return f"{n / 1024**2:,.1f} MiB"
+
+
+def check_zip(path: str | os.PathLike[str], zf: zipfile.ZipFile, limits: Limits) -> None:
+    """Refuse a package whose directory breaks the limits, before parsing anything."""
+    file = os.fspath(path)
+    infos = zf.infolist()
+    if len(infos) > limits.max_entries:
+        raise ReadError(
+            f"has too many zip entries to be read safely ({_RAISE_HINT})",
+            file=file,
+            expected=f"at most {limits.max_entries:,} entries",
+            found=len(infos),
+        )
+    total = 0
+    for info in infos:
+        total += info.file_size
+        if info.file_size > RATIO_CHECK_ABOVE:
+            ratio = info.file_size / max(info.compress_size, 1)
+            if ratio > limits.max_ratio:
+                raise ReadError(
+                    f"zip entry {info.filename!r} expands {ratio:,.0f}:1 "
+                    f"({_mib(info.compress_size)} to {_mib(info.file_size)}); "
+                    f"refused as a possible zip bomb ({_RAISE_HINT})",
+                    file=file,
+                    expected=f"at most {limits.max_ratio:g}:1",
+                )
+    if total > limits.max_total_uncompressed:
+        raise ReadError(
+            f"unpacks to {_mib(total)}, more than the limit of "
+            f"{_mib(limits.max_total_uncompressed)} ({_RAISE_HINT})",
+            file=file,
+        )
+
+
+class CountingReader(io.RawIOBase):
+    """A read-only stream that refuses to deliver more than ``allowed`` bytes."""
+
+    def __init__(self, raw: IO[bytes], name: str, allowed: int, file: str | None) -> None:
+        super().__init__()
+        self._raw = raw
+        self._name = name
+        self._allowed = allowed
+        self._file = file
+        self.count = 0
+
+    def readable(self) -> bool:
+        return True
+
+    def _tally(self, n: int) -> None:
+        self.count += n
+        if self.count > self._allowed:
+            raise ReadError(
+                f"zip entry {self._name!r} inflates to more than the {self._allowed:,} "
+                f"bytes its header declares or the limits allow; refused as unsafe "
+                f"({_RAISE_HINT})",
+                file=self._file,
+            )
+
+    def read(self, size: int = -1) -> bytes:
+        data = self._raw.read(size)
+        self._tally(len(data))
+        return data
+
+    def readinto(self, buffer: memoryview | bytearray) -> int:  # type: ignore[override]
+        data = self.read(len(buffer))
+        buffer[: len(data)] = data
+        return len(data)
+
+    def close(self) -> None:
+        self._raw.close()
+        super().close()
+
+
+def open_member(
+    zf: zipfile.ZipFile, name: str, limits: Limits, *, file: str | None = None
+) -> CountingReader:
+    """Open one zip member as a byte stream bounded by its declared size and the limits."""
+    info = zf.getinfo(name)
+    allowed = min(info.file_size, limits.max_total_uncompressed)
+    return CountingReader(zf.open(info), name, allowed, file)
+
+
+def read_member(
+    zf: zipfile.ZipFile, name: str, limits: Limits, *, file: str | None = None
+) -> bytes:
+    """The whole of one (small) zip member, counted, with its XML prolog checked."""
+    with open_member(zf, name, limits, file=file) as stream:
+        data = stream.read()
+    check_xml_head(data, name, file=file)
+    return data
+
+
+def check_xml_head(data: bytes, part: str, *, file: str | None = None) -> None:
+    """Refuse an XML part that declares a document type (DTD) or entities.
+
+    A declaration can only come before the root element, so the prolog is enough.
+    """
+    head = data[:4096]
+    # Skip the XML declaration, comments and processing instructions, up to the root tag.
+    pos = 0
+    while True:
+        lt = head.find(b"<", pos)
+        if lt < 0 or lt + 1 >= len(head):
+            break
+        nxt = head[lt + 1 : lt + 2]
+        if nxt == b"?":
+            pos = lt + 2
+            continue
+        if head.startswith(b"<!--", lt):
+            end = head.find(b"-->", lt)
+            pos = len(head) if end < 0 else end + 3
+            continue
+        if nxt == b"!":
+            raise ReadError(
+                f"part {part!r} contains an XML document type declaration; refused as unsafe",
+                file=file,
+            )
+        break
+    if b"<!ENTITY" in head or b"<!DOCTYPE" in head:
+        raise ReadError(
+            f"part {part!r} contains an XML document type declaration; refused as unsafe",
+            file=file,
+        )
+
+
+def safe_parser(*, huge: bool = False):
+    """An lxml parser that resolves no entities, loads no DTD and never uses the network."""
+    from lxml import etree
+
+    return etree.XMLParser(
+        resolve_entities=False,
+        no_network=True,
+        load_dtd=False,
+        dtd_validation=False,
+        huge_tree=huge,
+    )
