@@ -91,6 +91,7 @@ class Column:
     uncertainty_col: int | None = None
     texts: tuple[str | None, ...] | None = None
     note: str | None = None  # why it was (not) recognised, for `inspect`
+    atoms: FloatArray | None = None  # atoms per formula unit, for columns in per-atom units
 
 
 @dataclass(frozen=True)
@@ -147,6 +148,9 @@ class RowResult:
     formula: str | None
     values: dict[str, ComputedValue] = field(default_factory=dict)
     flags: list[Flag] = field(default_factory=list)
+    # How the values were made, for writers that emit formulas: the cycle's coefficients and
+    # each term's spreadsheet expression (not part of the JSON report).
+    trace: dict[str, Any] = field(default_factory=dict, repr=False)
 
     def as_dict(self) -> dict[str, Any]:
         return {

@@ -139,27 +139,55 @@ def _convention_flags(col: Column, conv: ColumnConvention, table: Table,
 # ----------------------------------------------------------------------------- row terms
 
 
+def ref_token(element: str, quantity: str, index: int) -> str:
+    """Placeholder for a reference value in a term's spreadsheet expression.
+
+    The writer replaces it by the address of the cell that holds the value on its reference
+    sheet; ``{R|Na|ionization_energy|1}``.
+    """
+    return f"{{R|{element}|{quantity}|{index}}}"
+
+
 @dataclass
 class _Term:
-    """One cycle term gathered for every row: values, uncertainties and where each came from."""
+    """One cycle term gathered for every row: values, uncertainties and where each came from.
+
+    ``exprs`` holds, per row, a spreadsheet expression that gives the term's value in kJ/mol
+    in the internal convention from the row's own cells and reference placeholders
+    (:func:`ref_token`), so that a writer can emit auditable formulas.
+    """
 
     values: np.ndarray
     sigmas: np.ndarray
     sources: list[str | None]  # per row; None where missing
+    exprs: list[str | None]
+    from_cell: np.ndarray  # bool per row: the value is the row's own cell
 
     @classmethod
     def empty(cls, n: int) -> _Term:
-        return cls(np.full(n, np.nan), np.full(n, np.nan), [None] * n)
+        return cls(np.full(n, np.nan), np.full(n, np.nan), [None] * n, [None] * n,
+                   np.zeros(n, dtype=bool))
 
     def fill_from_cells(self, col: Column, values: np.ndarray, table: Table,
-                        label: str, mask: np.ndarray | None = None) -> None:
-        """Take the row's own cell wherever it holds a value (and ``mask`` allows)."""
+                        label: str, mask: np.ndarray | None = None,
+                        transform: str = "{}") -> None:
+        """Take the row's own cell wherever it holds a value (and ``mask`` allows).
+
+        ``transform`` turns the converted cell expression into the term, e.g. ``-({})`` for an
+        electron affinity in the energy-released convention.
+        """
         have = ~np.isnan(values) if mask is None else (~np.isnan(values) & mask)
         self.values = np.where(have, values, self.values)
+        self.from_cell = self.from_cell | have
         if col.uncertainties is not None:
             self.sigmas = np.where(have, col.uncertainties, self.sigmas)
         for i in np.nonzero(have)[0]:
-            self.sources[i] = f"{label}: {table.sheet}!{a1(table.first_row - 1 + int(i), col.col)}"
+            i = int(i)
+            cell = a1(table.first_row - 1 + i, col.col)
+            self.sources[i] = f"{label}: {table.sheet}!{cell}"
+            factor = col.factor * (col.atoms[i] if col.atoms is not None else 1.0)
+            base = cell if factor == 1.0 else f"{cell}*{factor:.15g}"
+            self.exprs[i] = transform.format(base)
 
 
 def _ref_term(
@@ -185,6 +213,7 @@ def _ref_term(
         term.sigmas[i] = ref.uncertainty
         term.sources[i] = f"{label(key)}: {ref.source}"
         element, quantity, index = use_key(key)
+        term.exprs[i] = ref_token(element, quantity, index)
         used.setdefault((element, quantity, index),
                         ReferenceUse(element, quantity, index, ref.value, ref.uncertainty,
                                      ref.unit, ref.source))
@@ -301,16 +330,15 @@ def close_table(
     if bond is not None and bond.values is not None:
         vals, _ = positive_quantity(bond.values)
         # ΔatH(X) = ½ D(X–X) per atom of X, for the diatomic elements (common practice, no source)
-        no_atom_cell = np.isnan(terms["atomization_nonmetal"].values) | np.array(
-            [s is not None and s.startswith("ΔatH(") and ": workbook" not in s and "!" not in s
-             for s in terms["atomization_nonmetal"].sources])
-        terms["atomization_nonmetal"].fill_from_cells(bond, vals / 2.0, table,
-                                                     f"½ {bond.header}", mask=no_atom_cell)
+        terms["atomization_nonmetal"].fill_from_cells(
+            bond, vals / 2.0, table, f"½ {bond.header}",
+            mask=~terms["atomization_nonmetal"].from_cell, transform="({})/2")
 
     # -- ionization energies: IE1..IEp, each from the row or the reference
     ie_total = np.zeros(n)
     ie_var = np.zeros(n)
     ie_sources: list[list[str]] = [[] for _ in range(n)]
+    ie_exprs: list[list[str]] = [[] for _ in range(n)]
     ie_missing = np.zeros(n, dtype=bool)
     for k in range(1, 5):
         need = p >= k
@@ -333,9 +361,13 @@ def close_table(
         ie_var += np.where(need, np.nan_to_num(t.sigmas) ** 2, 0.0)
         for i in np.nonzero(need & ~np.isnan(t.values))[0]:
             ie_sources[int(i)].append(t.sources[int(i)] or "")
-    ion = _Term(np.where(ie_missing | np.isnan(p), np.nan, ie_total),
-                np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
-                ["; ".join(s) if s else None for s in ie_sources])
+            ie_exprs[int(i)].append(t.exprs[int(i)] or "")
+    ion_values = np.where(ie_missing | np.isnan(p), np.nan, ie_total)
+    ion = _Term(ion_values, np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
+                ["; ".join(s) if s else None for s in ie_sources],
+                ["+".join(e) if e and not np.isnan(ion_values[i]) else None
+                 for i, e in enumerate(ie_exprs)],
+                np.zeros(n, dtype=bool))
     sum_col = table.column("ionization_energy", 0)
     if sum_col is not None and sum_col.values is not None:
         vals, _ = positive_quantity(sum_col.values)
@@ -363,7 +395,9 @@ def close_table(
                         "convention it was copied in", Severity.WARNING)
         mask = q >= k if k == 2 else None
         vals = _check_against_reference(col, conv.values, term.values, table, row_flags, settings)
-        term.fill_from_cells(col, vals, table, col.header, mask=mask)
+        # the same conversion as electron_gain_from_column, written as a formula
+        transform = "ABS({})" if k >= 2 else ("-({})" if conv.convention == "released" else "{}")
+        term.fill_from_cells(col, vals, table, col.header, mask=mask, transform=transform)
     terms["electron_gain_1"] = eg1
     terms["electron_gain_higher"] = egh
 
@@ -391,7 +425,7 @@ def close_table(
                         lambda i, c=lcol, cv=conv: f"{c.header}: this value's sign differs from the "
                         f"rest of the column ({cv.convention} convention): formation and "
                         "dissociation values seem mixed; its magnitude was used", Severity.WARNING)
-        lat.fill_from_cells(lcol, conv.values, table, lcol.header)
+        lat.fill_from_cells(lcol, conv.values, table, lcol.header, transform="ABS({})")
         if lcol.quantity == "lattice_energy":
             file_flags.append(Flag(
                 "energy-as-enthalpy", Severity.NOTE,
@@ -500,6 +534,12 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
         fcell = a1(table.first_row - 1 + i, fcol.col)
         if status == CycleStatus.NO_IONS:
             continue
+        rr.trace = {
+            "coefficients": {name: float(sol.coefficients[i, k]) for k, name in enumerate(TERMS)},
+            "exprs": {name: terms[name].exprs[i] for name in TERMS},
+            "values": {name: float(sol.completed[i, k]) for k, name in enumerate(TERMS)},
+            "solved": TERMS[int(sol.solved[i])] if status == CycleStatus.SOLVED else None,
+        }
         sources_cycle = _sources(terms, i, exclude=("lattice_enthalpy",))
         if int(cyc.status[i]) == CycleStatus.SOLVED and int(cyc.solved[i]) == li:
             rr.values["lattice_enthalpy"] = ComputedValue(

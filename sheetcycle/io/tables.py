@@ -311,7 +311,8 @@ def find_tables(
                               sheet.name, a1(first + i, c)))
         columns.append(Column(header=header, col=c, quantity=quantity, index=index,
                               unit=conv.unit_text, factor=conv.factor, convention=convention,
-                              values=values, uncertainties=uncs))
+                              values=values, uncertainties=uncs,
+                              atoms=atoms() if conv.per_entity == "atom" else None))
 
     columns = _pair_uncertainties(columns, rows, first, n, sheet.name, flags)
     table = Table(sheet=sheet.name, header_row=hr + 1, first_row=first + 1,
