@@ -9,6 +9,7 @@ values and plain-words flags at the cells they concern.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -137,6 +138,9 @@ def _convention_flags(col: Column, conv: ColumnConvention, table: Table,
 
 
 # ----------------------------------------------------------------------------- row terms
+
+
+_TOKEN = re.compile(r"\{R\|[^{}|]+\|[a-z_]+\|\d+\}")
 
 
 def ref_token(element: str, quantity: str, index: int) -> str:
@@ -697,6 +701,9 @@ def run_tables(
         if t.column("formula") is not None:
             rows.extend(close_table(t, ref, settings, used, file_flags))
     file_flags = _route_to_rows(file_flags, rows)
+    pointed = {tok for r in rows for e in r.trace.get("exprs", {}).values() if e
+               for tok in _TOKEN.findall(e)}
+    references = [u for key, u in used.items() if ref_token(*key) in pointed]
     return RunResult(version=__version__, input=str(path), tables=list(tables), rows=rows,
-                     references=sorted(used.values(), key=lambda r: (r.element, r.quantity, r.index)),
+                     references=sorted(references, key=lambda r: (r.element, r.quantity, r.index)),
                      settings=settings.as_dict(), file_flags=file_flags)
