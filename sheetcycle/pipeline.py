@@ -57,6 +57,12 @@ class Settings:
     column_overrides: tuple[ColumnOverride, ...] = ()
     reference_files: tuple[str, ...] = ()
     extra_references: tuple[tuple[str, str, int, RefValue], ...] = field(default=(), repr=False)
+    covalent_threshold: float = 5.0  # percent: cycle value above the ionic models by more → flag
+    model_spread: float = 10.0  # percent: ionic models disagreeing by more → note
+    hydration_scale: float | None = None  # ΔhydH(H+) of the user's single-ion scale; None = conventional
+    temperature: float | None = None  # K: report reaction enthalpies also at this temperature
+    reconcile: bool = False  # workbook-wide least-squares reconciliation of shared terms
+    reconcile_threshold: float = 3.0  # normalised residual above which an input is named
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -66,6 +72,12 @@ class Settings:
             "electron_gain_convention": "thermochemical electron-gain enthalpy (negative = exothermic)",
             "column_overrides": [o.__dict__ for o in self.column_overrides],
             "reference_files": list(self.reference_files),
+            "covalent_threshold_percent": self.covalent_threshold,
+            "model_spread_percent": self.model_spread,
+            "hydration_scale_h_plus_kJ_per_mol": self.hydration_scale,
+            "temperature_K": self.temperature,
+            "reconcile": self.reconcile,
+            "reconcile_threshold": self.reconcile_threshold,
         }
 
 
@@ -279,14 +291,48 @@ def _int_or_none(col: Column | None, i: int) -> int | None:
     return None
 
 
+@dataclass
+class TableContext:
+    """What a later pass over a compound table gets: the table, its rows and the cycle."""
+
+    table: Table
+    rows: list[RowResult]  # one per data row, in sheet order
+    ions: list[IonAssignment | None]
+    lattice: np.ndarray  # Born-Haber lattice enthalpy per row (dissociation, kJ/mol; NaN)
+    lattice_sigma: np.ndarray
+    ref: ReferenceData
+    settings: Settings
+    file_flags: list[Flag]
+
+
+@dataclass
+class WorkbookContext:
+    """What a workbook-wide pass gets: every table and every compound table's context.
+
+    A workbook pass returns new rows (e.g. one per reaction of a reaction table) and may add
+    values and flags to the rows of ``contexts``.
+    """
+
+    tables: list[Table]
+    contexts: list[TableContext]
+    ref: ReferenceData
+    settings: Settings
+    file_flags: list[Flag]
+
+
 def close_table(
     table: Table,
     ref: ReferenceData,
     settings: Settings,
     used: dict[tuple[str, str, int], ReferenceUse],
     file_flags: list[Flag],
+    contexts: list[TableContext] | None = None,
 ) -> list[RowResult]:
-    """Close the Born-Haber cycle of every row of a compound table."""
+    """Close the Born-Haber cycle of every row of a compound table.
+
+    When ``contexts`` is given, the table's :class:`TableContext` is appended to it for the
+    passes that run after every table has been closed.
+    """
     n = table.n_rows
     fcol = table.column("formula")
     assert fcol is not None and fcol.texts is not None
@@ -447,7 +493,13 @@ def close_table(
         values={**values, "lattice_enthalpy": np.full(n, np.nan)}, sigmas=sigmas)
     sol = close_cycles(full, tolerance=settings.tolerance)
     cyc = close_cycles(without_lattice, tolerance=settings.tolerance)
-    return _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an, row_flags)
+    rows = _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an, row_flags)
+    if contexts is not None:
+        lat_ok = (cyc.status == CycleStatus.SOLVED) & (cyc.solved == IDX["lattice_enthalpy"])
+        contexts.append(TableContext(table, rows, ions, np.where(lat_ok, cyc.value, np.nan),
+                                     np.where(lat_ok, cyc.sigma, np.nan), ref, settings,
+                                     file_flags))
+    return rows
 
 
 def _conv_words(conv: str | None) -> str:
@@ -697,9 +749,19 @@ def run_tables(
     ref = base.with_overrides(overrides) if overrides else base
     used: dict[tuple[str, str, int], ReferenceUse] = {}
     rows: list[RowResult] = []
+    contexts: list[TableContext] = []
     for t in tables:
         if t.column("formula") is not None:
-            rows.extend(close_table(t, ref, settings, used, file_flags))
+            rows.extend(close_table(t, ref, settings, used, file_flags, contexts))
+    from sheetcycle.passes import TABLE_PASSES, WORKBOOK_PASSES
+
+    for ctx in contexts:
+        for table_pass in TABLE_PASSES:
+            table_pass(ctx)
+    for workbook_pass in WORKBOOK_PASSES:
+        rows.extend(workbook_pass(WorkbookContext(tables=list(tables), contexts=contexts,
+                                                  ref=ref, settings=settings,
+                                                  file_flags=file_flags)))
     file_flags = _route_to_rows(file_flags, rows)
     pointed = {tok for r in rows for e in r.trace.get("exprs", {}).values() if e
                for tok in _TOKEN.findall(e)}

@@ -1,0 +1,22 @@
+"""The registry of passes that run after every compound table's cycles are closed.
+
+Data as data: each kind of further work (theoretical lattice energies, solution enthalpies,
+reactions, reconciliation …) is one function in its own module, listed here in the order it
+runs. A table pass gets one :class:`~sheetcycle.pipeline.TableContext` and adds values and
+flags to its rows; a workbook pass gets the :class:`~sheetcycle.pipeline.WorkbookContext`
+and returns any new rows (for tables that are not compound tables, such as reactions).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from sheetcycle.model import RowResult
+    from sheetcycle.pipeline import TableContext, WorkbookContext
+
+__all__ = ["TABLE_PASSES", "WORKBOOK_PASSES"]
+
+TABLE_PASSES: list[Callable[[TableContext], None]] = []
+WORKBOOK_PASSES: list[Callable[[WorkbookContext], list[RowResult]]] = []
