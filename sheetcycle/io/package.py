@@ -628,8 +628,10 @@ class _Out:
         info.compress_type = like.compress_type
         info.external_attr = like.external_attr
         n_new = sum(n * len(cols) for _, n, cols in job.blocks)
+        if like.file_size > 8 * 1024 * 1024:  # big sheets: fast deflate (level 1)
+            info._compresslevel = 1  # type: ignore[attr-defined]
         big = like.file_size + 120 * n_new > 2 * 1024**3
-        rewriter = SheetRewriter(job, styler, file, _cell_attrs)
+        rewriter = SheetRewriter(job, styler, file)
         with self.zin.open(like) as src, self.zout.open(info, "w", force_zip64=big) as dst:
             rewriter.run(src, dst.write)
 

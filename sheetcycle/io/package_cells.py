@@ -34,6 +34,8 @@ def cell_xml(p: str, ref: str, s: int | None, value: object, formula: str | None
     sa = f' s="{s}"' if s else ""
     if formula is not None:
         f = f"<{p}f>{esc_text(formula)}</{p}f>"
+        if type(value) is float and math.isfinite(value):  # the common case first
+            return f'<{p}c r="{ref}"{sa}>{f}<{p}v>{value!r}</{p}v></{p}c>'
         if value is None:
             return f'<{p}c r="{ref}"{sa}>{f}</{p}c>'
         if isinstance(value, bool):
@@ -50,7 +52,10 @@ def cell_xml(p: str, ref: str, s: int | None, value: object, formula: str | None
         return f'<{p}c r="{ref}"{sa} t="inlineStr"><{p}is>{_t(p, value)}</{p}is></{p}c>'
     if isinstance(value, bool):
         return f'<{p}c r="{ref}"{sa} t="b"><{p}v>{int(value)}</{p}v></{p}c>'
-    return f'<{p}c r="{ref}"{sa}><{p}v>{_num(value)}</{p}v></{p}c>'  # type: ignore[arg-type]
+    x = float(value)  # type: ignore[arg-type]
+    if not math.isfinite(x):
+        return f'<{p}c r="{ref}"{sa}/>' if sa else ""
+    return f'<{p}c r="{ref}"{sa}><{p}v>{_num(x)}</{p}v></{p}c>'
 
 
 @dataclass

@@ -19,6 +19,7 @@ from typing import IO
 from sheetcycle.errors import ReadError, WriteError
 from sheetcycle.io.package_cells import CellStyler, cell_xml
 from sheetcycle.io.package_xml import (
+    _NEEDS_ESCAPE,
     MAIN_NS,
     REL_NS,
     attr,
@@ -32,6 +33,7 @@ from sheetcycle.io.package_xml import (
 __all__ = ["ColumnJob", "SheetJob", "SheetRewriter", "find_cell_styles", "scan_tail"]
 
 CHUNK = 4 * 1024 * 1024
+_HUGE = 1.7976931348623157e308  # largest finite double
 _INF = 1 << 62
 
 # Children of <worksheet> that come after <legacyDrawing> (CT_Worksheet order).
@@ -213,62 +215,103 @@ def _scan_cells(body: bytes, p: bytes) -> list[tuple[int, int, int, int, int, bo
 class SheetRewriter:
     """Stream one worksheet part through, adding cells."""
 
-    def __init__(
-        self,
-        job: SheetJob,
-        styler: CellStyler,
-        file: str,
-        cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
-    ) -> None:
+    def __init__(self, job: SheetJob, styler: CellStyler, file: str) -> None:
         self.job = job
         self.styler = styler
         self.file = file
-        self.cell_attrs = cell_attrs
         self.p = b""
+        self._ps = ""
         self._root = b""
-        self.note_rows = job.note_rows()
         self.cols = job.columns()
-        self.block_cols = {id(cols): cols for _, _, cols in job.blocks}
         self.add_cols = {c.col for c in self.cols}
+        self._letters = {c.col: col_letters(c.col) for c in self.cols}
+        self._style_memo: dict[tuple[int, str | None, bool], int] = {}
+        self._spans_memo: dict[bytes, bytes] = {}
+        self._plain_s: dict[int, str] = {}
+        # target rows as sorted, merged half-open intervals [start, end)
+        spans = [(r, r + 1) for r in job.header_rows]
+        spans += [(first, first + n) for first, n, _ in job.blocks if n]
+        spans += [(r, r + 1) for r in job.notes]
+        spans.sort()
+        merged: list[list[int]] = []
+        for a, b in spans:
+            if merged and a <= merged[-1][1]:
+                merged[-1][1] = max(merged[-1][1], b)
+            else:
+                merged.append([a, b])
+        self._starts = [a for a, _ in merged]
+        self._ends = [b for _, b in merged]
+
+    def _set_patterns(self) -> None:
+        p = self.p
+        self._ext = b"<" + p + b"extLst"
+        self._c_open = b"<" + p + b"c "
+        self._c_bare = b"<" + p + b"c>"
+        self._c_empty = b"<" + p + b"c/>"
+        self._r_letters = re.compile(rb"<" + re.escape(p) + rb"c\s[^>]*?\br=\"\$?([A-Za-z]+)")
+        self._col_memo: dict[bytes, int] = {}
 
     # --- which rows get something ---------------------------------------------------
 
     def next_target(self, x: int) -> int:
-        best = _INF
-        for row in self.job.header_rows:
-            if x <= row < best:
-                best = row
-        for first, n, _ in self.job.blocks:
-            if x < first + n:
-                best = min(best, max(x, first))
-        k = bisect.bisect_left(self.note_rows, x)
-        if k < len(self.note_rows):
-            best = min(best, self.note_rows[k])
-        return best
+        """The first row >= x that gets something (a huge number when none)."""
+        k = bisect.bisect_right(self._starts, x) - 1
+        if k >= 0 and x < self._ends[k]:
+            return x
+        k += 1
+        return self._starts[k] if k < len(self._starts) else _INF
+
+    def _style(self, col: ColumnJob, style: str | None, numeric: bool) -> int:
+        key = (col.col, style, numeric)
+        s = self._style_memo.get(key)
+        if s is None:
+            s = self.styler.named(style, numeric=numeric, number_xf=col.number_xf)
+            self._style_memo[key] = s
+        return s
 
     def adds_for(self, r: int) -> list[tuple[int, str]]:
         out: list[tuple[int, str]] = []
-        p = self.p.decode()
+        p = self._ps
         notes = self.job.notes.get(r)
+        letters = self._letters
         for col in self.job.header_rows.get(r, ()):
             s = col.header_xf
             if notes and col.col in notes:
                 s = self.styler.styles.with_fill(s, notes[col.col])
-            out.append((col.col, cell_xml(p, f"{col_letters(col.col)}{r}", s, col.header, None)))
+            out.append((col.col, cell_xml(p, f"{letters[col.col]}{r}", s, col.header, None)))
         for first, n, cols in self.job.blocks:
             if first <= r < first + n:
                 i = r - first
                 for col in cols:
-                    value, formula, style = self.cell_attrs(col.cells[i])  # type: ignore[index]
+                    cell = col.cells[i]  # type: ignore[index]
+                    value, formula = cell.value, cell.formula
+                    if (  # the common case inline: a formula with a finite number, no note
+                        formula is not None
+                        and type(value) is float
+                        and cell.style is None
+                        and not notes
+                        and -_HUGE < value < _HUGE
+                        and _NEEDS_ESCAPE.search(formula) is None
+                    ):
+                        sa = self._plain_s.get(col.col)
+                        if sa is None:
+                            s = self._style(col, None, True)
+                            sa = self._plain_s[col.col] = f' s="{s}"' if s else ""
+                        out.append(
+                            (
+                                col.col,
+                                f'<{p}c r="{letters[col.col]}{r}"{sa}><{p}f>'
+                                f"{formula}</{p}f><{p}v>{value!r}</{p}v></{p}c>",
+                            )
+                        )
+                        continue
                     numeric = formula is not None or (
                         value is not None and not isinstance(value, str)
                     )
-                    s = self.styler.named(style, numeric=numeric, number_xf=col.number_xf)
+                    s = self._style(col, cell.style, numeric)
                     if notes and col.col in notes:
                         s = self.styler.styles.with_fill(s, notes[col.col])
-                    out.append(
-                        (col.col, cell_xml(p, f"{col_letters(col.col)}{r}", s, value, formula))
-                    )
+                    out.append((col.col, cell_xml(p, f"{letters[col.col]}{r}", s, value, formula)))
         if len(out) > 1 and any(out[k][0] > out[k + 1][0] for k in range(len(out) - 1)):
             out.sort(key=lambda t: t[0])
         return out
@@ -290,37 +333,47 @@ class SheetRewriter:
 
     def edit_row(self, attrs: bytes, body: bytes | None, r: int) -> bytes:
         p = self.p
-        adds = [(c, x.encode()) for c, x in self.adds_for(r) if x]
+        found = [t for t in self.adds_for(r) if t[1]]
         notes = self.job.notes.get(r)
         if body is None:
             body = b""
-        cells_needed = bool(notes)
-        tail_pos = body.find(b"<" + p + b"extLst")
+        tail_pos = body.find(self._ext)
         if tail_pos < 0:
             tail_pos = len(body)
-        if adds and not cells_needed:
+        cells_needed = bool(notes)
+        if found and not cells_needed:
             last = self._last_col(body)
-            cells_needed = last is None or last >= adds[0][0]
+            cells_needed = last is None or last >= found[0][0]
         if not cells_needed:
-            new_body = body[:tail_pos] + b"".join(x for _, x in adds) + body[tail_pos:]
+            added = "".join(x for _, x in found).encode()
+            new_body = (
+                body + added
+                if tail_pos == len(body)
+                else (body[:tail_pos] + added + body[tail_pos:])
+            )
         else:
+            adds = [(c, x.encode()) for c, x in found]
             new_body = self._merge(body, tail_pos, adds, notes or {}, r)
-        if adds:
-            attrs = self._spans(attrs, adds[0][0], adds[-1][0])
+        if found:
+            attrs = self._spans(attrs, found[0][0], found[-1][0])
         return b"<" + p + b"row" + attrs + b">" + new_body + b"</" + p + b"row>"
 
     def _last_col(self, body: bytes) -> int | None:
-        p = self.p
-        k = body.rfind(b"<" + p + b"c ")
-        if max(body.rfind(b"<" + p + b"c>"), body.rfind(b"<" + p + b"c/>")) > k:
+        """Column of the row's last cell; None when that needs a full scan."""
+        k = body.rfind(self._c_open)
+        if body.find(self._c_bare, max(k, 0)) >= 0 or body.find(self._c_empty, max(k, 0)) >= 0:
             return None
         if k < 0:
             return -1
-        gt = body.find(b">", k)
-        r = attr(body[k : gt + 1], b"r")
-        if r is None:
+        m = self._r_letters.match(body, k)
+        if m is None:
             return None
-        return col_index(re.sub(rb"[0-9$]", b"", r).decode())
+        letters = m.group(1)
+        col = self._col_memo.get(letters)
+        if col is None:
+            col = col_index(letters.decode())
+            self._col_memo[letters] = col
+        return col
 
     def _merge(
         self,
@@ -375,19 +428,28 @@ class SheetRewriter:
         out.append(body[tail_pos:])
         return b"".join(out)
 
-    @staticmethod
-    def _spans(attrs: bytes, lo_col: int, hi_col: int) -> bytes:
+    def _spans(self, attrs: bytes, lo_col: int, hi_col: int) -> bytes:
         spans = attr(attrs, b"spans")
         if spans is None:
             return attrs
+        key = b"%d:%d:" % (lo_col, hi_col) + spans
+        new = self._spans_memo.get(key)
+        if new is None:
+            new = self._new_spans(spans, lo_col, hi_col)
+            self._spans_memo[key] = new
+        if new == spans:
+            return attrs
+        return attrs.replace(b'spans="' + spans + b'"', b'spans="' + new + b'"', 1)
+
+    @staticmethod
+    def _new_spans(spans: bytes, lo_col: int, hi_col: int) -> bytes:
         try:
             bounds = [int(x) for part in spans.split() for x in part.split(b":")]
         except ValueError:
-            return attrs
+            return spans
         lo = min([*bounds, lo_col + 1])
         hi = max([*bounds, hi_col + 1])
-        tag = set_attr(b"<row" + attrs + b">", b"spans", f"{lo}:{hi}".encode())
-        return tag[4:-1]
+        return f"{lo}:{hi}".encode()
 
     # --- the whole part -----------------------------------------------------------
 
@@ -397,7 +459,9 @@ class SheetRewriter:
         for chunk in chunks:
             buf += chunk
             self.p = _prefix(buf[:65536])
+            self._ps = self.p.decode()
             self._root = buf[:65536]
+            self._set_patterns()
             m = re.search(rb"<" + re.escape(self.p) + rb"sheetData(?=[\s>/])[^>]*?(/?)>", buf)
             if m:
                 break

@@ -94,8 +94,13 @@ def _ooxml_escape(text: str) -> str:
     return _BAD_XML.sub(lambda m: f"_x{ord(m.group()):04X}_", text)
 
 
+_NEEDS_ESCAPE = re.compile("[&<>_\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+
+
 def esc_text(text: str) -> str:
     """Text content for a <t> or <v> element."""
+    if _NEEDS_ESCAPE.search(text) is None:
+        return text
     text = _ooxml_escape(text)
     return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
@@ -111,9 +116,16 @@ def esc_attr(text: str) -> str:
     )
 
 
+_ATTR_RES: dict[bytes, re.Pattern[bytes]] = {}
+
+
 def attr(tag: bytes, name: bytes) -> bytes | None:
     """The raw value of attribute ``name`` in a start tag (None when absent)."""
-    m = re.search(rb"\s" + re.escape(name) + rb"\s*=\s*(\"([^\"]*)\"|'([^']*)')", tag)
+    pat = _ATTR_RES.get(name)
+    if pat is None:
+        pat = re.compile(rb"\s" + re.escape(name) + rb"\s*=\s*(\"([^\"]*)\"|'([^']*)')")
+        _ATTR_RES[name] = pat
+    m = pat.search(tag)
     if not m:
         return None
     return m.group(2) if m.group(2) is not None else m.group(3)
