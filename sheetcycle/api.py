@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from sheetcycle.errors import ReadError, UnitError, UsageError
-from sheetcycle.io.cells import read_cells
+from sheetcycle.io.cells import WorkbookCells, read_cells
 from sheetcycle.io.tables import ColumnOverride, find_tables
 from sheetcycle.model import Column, Flag, RefValue, RowResult, RunResult, Table
 from sheetcycle.pipeline import Settings, close_table, run_tables
@@ -38,6 +38,7 @@ class Inspection:
     flags: list[Flag]
     sheets_without_table: list[str] = field(default_factory=list)
     cache_note: str = ""
+    book: WorkbookCells | None = field(default=None, repr=False)
 
     def as_text(self) -> str:
         """A plain report: table by table, column → quantity, unit, convention."""
@@ -90,7 +91,7 @@ def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspe
         flags.extend(fl)
         if not found:
             empty.append(sheet.name)
-    return Inspection(str(path), tables, flags, empty, book.cache_reason)
+    return Inspection(str(path), tables, flags, empty, book.cache_reason, book)
 
 
 def inspect(path: str | Path, *, column_overrides: Sequence[ColumnOverride] = ()) -> Inspection:
@@ -109,12 +110,16 @@ def annotate(
     json_path: str | Path | None = None,
     settings: Settings | None = None,
     force: bool = False,
+    results_book: bool = False,
 ) -> RunResult:
     """Read a workbook, close every compound's Born-Haber cycle, and write the outputs.
 
-    ``output`` is a results workbook (.xlsx), ``json_path`` a machine-readable report. Both
-    are written completely or not at all; an existing file is kept unless ``force``.
-    Returns the :class:`~sheetcycle.model.RunResult` whatever is written.
+    ``output`` is the user's own workbook handed back with additions (computed columns as
+    formulas with cached values, notes on flagged cells, a flags sheet and a method sheet;
+    .xlsx and .xlsm inputs), or, with ``results_book=True`` or for other input formats, a
+    fresh results workbook. ``json_path`` is the machine-readable report. Every output is
+    written completely or not at all; an existing file is kept unless ``force``; the input
+    is never modified. Returns the :class:`~sheetcycle.model.RunResult`.
     """
     from sheetcycle.io.atomic import _check_target as check_output_target
     from sheetcycle.io.report_json import write_json
@@ -127,7 +132,14 @@ def annotate(
     found = _read_tables(path, settings.column_overrides)
     run = run_tables(path, found.tables, settings, list(found.flags))
     if output is not None:
-        write_results_workbook(run, Path(output), force=force)
+        own = Path(path).suffix.lower() in (".xlsx", ".xlsm") and not results_book
+        if own:
+            from sheetcycle.io.annotated import write_annotated_copy
+
+            assert found.book is not None
+            write_annotated_copy(run, found.book, Path(path), Path(output), force=force)
+        else:
+            write_results_workbook(run, Path(output), force=force)
     if json_path is not None:
         write_json(run, Path(json_path), force=force)
     return run

@@ -56,7 +56,8 @@ def _parser() -> argparse.ArgumentParser:
     a = sub.add_parser("annotate", help="compute every cycle and write the results")
     a.add_argument("inputs", nargs="+", metavar="FILE", help="workbooks (.xlsx .xlsm .xls .ods .csv)")
     a.add_argument("-o", "--output", metavar="PATH",
-                   help="results workbook (.xlsx); with several inputs, a folder")
+                   help="the input workbook handed back annotated (.xlsx/.xlsm; other formats "
+                        "get a results workbook); with several inputs, a folder")
     a.add_argument("--json", metavar="PATH", dest="json_path",
                    help="machine-readable report; with several inputs, a folder")
     a.add_argument("--tolerance", type=float, default=10.0, metavar="KJ",
@@ -64,6 +65,9 @@ def _parser() -> argparse.ArgumentParser:
     a.add_argument("--reference", action="append", default=[], metavar="CSV",
                    help="reference values overriding the built-in ones "
                         "(element,quantity,index,value,unit,uncertainty,source)")
+    a.add_argument("--results-book", action="store_true",
+                   help="with -o, write a fresh results workbook instead of the annotated copy "
+                        "of the input")
     a.add_argument("--force", action="store_true", help="overwrite existing outputs")
     a.add_argument("-q", "--quiet", action="store_true", help="print only errors")
     common(a)
@@ -117,6 +121,11 @@ def _target(base: str | None, src: Path, many: bool, suffix: str) -> Path | None
     return Path(base)
 
 
+def _out_suffix(src: Path, args: argparse.Namespace) -> str:
+    own = src.suffix.lower() in (".xlsx", ".xlsm") and not args.results_book
+    return f".annotated{src.suffix.lower()}" if own else ".results.xlsx"
+
+
 def _annotate(args: argparse.Namespace) -> int:
     from sheetcycle.api import annotate, load_reference_file
     from sheetcycle.pipeline import Settings
@@ -135,9 +144,9 @@ def _annotate(args: argparse.Namespace) -> int:
     failed = 0
     for src in paths:
         try:
-            run = annotate(src, _target(args.output, src, many, ".results.xlsx"),
+            run = annotate(src, _target(args.output, src, many, _out_suffix(src, args)),
                            json_path=_target(args.json_path, src, many, ".report.json"),
-                           settings=settings, force=args.force)
+                           settings=settings, force=args.force, results_book=args.results_book)
         except SheetcycleError as exc:
             failed += 1
             print(f"sheetcycle: {exc}", file=sys.stderr)

@@ -606,12 +606,8 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
         if status == CycleStatus.CLOSED:
             rr.values["closure_residual"] = ComputedValue(
                 float(sol.residual[i]), float(sol.residual_sigma[i]), KJ,
-                "cycle lattice enthalpy minus the given lattice enthalpy",
-                tuple(_sources(terms, i)))
-            if not sol.sigma_complete[i]:
-                flags.append(Flag("uncertainty-partial", Severity.NOTE,
-                                  "some terms have no uncertainty; the combined uncertainty "
-                                  "counts only those that do", table.sheet, fcell))
+                "cycle lattice enthalpy minus the given lattice enthalpy"
+                + _sigma_note(terms, i, sol), tuple(_sources(terms, i)))
             if sol.exceeds[i]:
                 cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
                 msg = (f"the cycle does not close: from the other terms the lattice enthalpy is "
@@ -657,7 +653,8 @@ def _sigma_note(terms: dict[str, _Term], i: int, sol: Any) -> str:
     if sol.sigma_complete[i]:
         return ""
     names = [TERM_LABELS[name] for name, t in terms.items()
-             if name != "lattice_enthalpy" and sol.coefficients[i, IDX[name]] != 0
+             if (name != "lattice_enthalpy" or sol.status[i] == CycleStatus.CLOSED)
+             and sol.coefficients[i, IDX[name]] != 0
              and not math.isnan(t.values[i]) and math.isnan(t.sigmas[i])]
     return ("; the uncertainty counts only the terms that have one (none given for: "
             + ", ".join(names) + ")") if names else ""

@@ -1,0 +1,377 @@
+"""Plan the additions to the user's own workbook: computed columns, notes, and our sheets.
+
+The people who receive the annotated workbook never run Python, so it must show, explain
+and let them check every derived number:
+
+* computed columns to the right of each compound table (after one blank column), headed in
+  the table's header row and styled like it, each value written as a formula over the row's
+  own cells and the reference-value cells, with its value cached;
+* a note and a fill on every flagged cell, one fill per severity;
+* a flags sheet listing every flag with a link to its cell;
+* a method sheet with the version, settings, conventions, the legend, and every reference
+  value used with its source (the cells the formulas point at).
+
+Every formula is evaluated with the ``formulas`` package (the same evaluation that reads
+users' formulas) against the engine's value before anything is written.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from sheetcycle.engine.born_haber import TERMS
+from sheetcycle.errors import WriteError
+from sheetcycle.io.cells import SheetCells, WorkbookCells
+from sheetcycle.io.package import (
+    AddedCell,
+    AddedColumn,
+    CellNote,
+    NewSheet,
+    SheetAddition,
+    write_annotated,
+)
+from sheetcycle.io.tables import a1
+from sheetcycle.model import Flag, RowResult, RunResult, Severity, Table
+
+__all__ = [
+    "FLAGS_SHEET",
+    "METHOD_SHEET",
+    "AnnotationPlan",
+    "plan_annotations",
+    "write_annotated_copy",
+]
+
+METHOD_SHEET = "sheetcycle method"
+FLAGS_SHEET = "sheetcycle flags"
+
+#: Column headings of the computed values (quantity and unit), in the order they appear.
+VALUE_HEADINGS: dict[str, str] = {
+    "lattice_enthalpy": "ΔH_L cycle / kJ mol⁻¹",
+    "closure_residual": "closure residual / kJ mol⁻¹",
+    "formation_enthalpy": "ΔfH derived / kJ mol⁻¹",
+    "electron_gain_enthalpy": "ΔegH derived / kJ mol⁻¹",
+    "atomization_enthalpy": "ΔatH derived / kJ mol⁻¹",
+    "ionization_energy": "ΣIE derived / kJ mol⁻¹",
+}
+#: Values that get an uncertainty column beside them.
+WITH_UNCERTAINTY = ("lattice_enthalpy", "closure_residual")
+
+#: Terms in the order a reader follows the cycle: the metal, the non-metal, then the solid.
+_FORMULA_ORDER = ("atomization_metal", "ionization", "atomization_nonmetal", "electron_gain_1",
+                  "electron_gain_higher", "formation_enthalpy", "lattice_enthalpy")
+assert set(_FORMULA_ORDER) == set(TERMS)
+_TOKEN = re.compile(r"\{R\|([^{}|]+)\|([a-z_]+)\|(\d+)\}")
+_SIMPLE = re.compile(r"^(?:\$?[A-Z]{1,3}\$?\d+|'[^']+'!\$?[A-Z]{1,3}\$?\d+)$")
+_RANK = {Severity.NOTE: 0, Severity.WARNING: 1, Severity.ERROR: 2}
+
+
+@dataclass
+class AnnotationPlan:
+    """Everything the package writer is asked to add."""
+
+    additions: list[SheetAddition] = field(default_factory=list)
+    notes: list[CellNote] = field(default_factory=list)
+    new_sheets: list[NewSheet] = field(default_factory=list)
+    formulas: list[tuple[str, str, str, float]] = field(default_factory=list)  # sheet, cell, f, v
+
+
+def _q(sheet: str) -> str:
+    return "'" + sheet.replace("'", "''") + "'"
+
+
+def _paren(expr: str) -> str:
+    return expr if _SIMPLE.match(expr) else f"({expr})"
+
+
+def _linear(pieces: Sequence[tuple[float, str]]) -> str:
+    """c1·e1 + c2·e2 … written plainly (1 and −1 without a factor)."""
+    out = ""
+    for c, e in pieces:
+        if c == 0:
+            continue
+        mag = abs(c)
+        body = _paren(e) if mag == 1 else f"{mag:.15g}*{_paren(e)}"
+        sign = "-" if c < 0 else "+"
+        out += (("-" if sign == "-" else "") + body) if not out else f"{sign}{body}"
+    return out or "0"
+
+
+def cycle_formula(trace: Mapping[str, Any], solve_for: str, refs: Callable[[str, str, int], str],
+                  ) -> str | None:
+    """The spreadsheet formula that solves a row's cycle for one term, or None.
+
+    ``refs`` maps a reference placeholder (element, quantity, index) to a cell address.
+    """
+    coeffs: Mapping[str, float] = trace["coefficients"]
+    exprs: Mapping[str, str | None] = trace["exprs"]
+    ck = coeffs[solve_for]
+    if ck == 0:
+        return None
+    pieces: list[tuple[float, str]] = []
+    for name in _FORMULA_ORDER:
+        if name == solve_for or coeffs[name] == 0:
+            continue
+        e = exprs.get(name)
+        if e is None:
+            return None
+        e = _TOKEN.sub(lambda m: refs(m.group(1), m.group(2), int(m.group(3))), e)
+        pieces.append((-coeffs[name] / ck, e))
+    return _linear(pieces)
+
+
+def _last_used_col(sheet: SheetCells, first: int, last: int) -> int:
+    end = -1
+    for r in range(max(first, 0), min(last + 1, len(sheet.rows))):
+        row = sheet.rows[r]
+        for c in range(len(row) - 1, end, -1):
+            if row[c] is not None:
+                end = c
+                break
+    return end
+
+
+def _flag_text(flags: Sequence[Flag]) -> str:
+    return "\n".join(f"{f.severity.value}: {f.message}" for f in flags)
+
+
+def _worst(flags: Sequence[Flag]) -> Severity | None:
+    return max((f.severity for f in flags), key=_RANK.__getitem__, default=None)
+
+
+def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
+    """Decide every addition for a run over an .xlsx/.xlsm workbook."""
+    plan = AnnotationPlan()
+    ref_rows: dict[tuple[str, str, int], int] = {}
+    method_rows, ref_start = _method_rows(run)
+    for k, use in enumerate(run.references):
+        ref_rows[(use.element, use.quantity, use.index)] = ref_start + k  # 1-based sheet row
+
+    def refs(element: str, quantity: str, index: int) -> str:
+        row = ref_rows.get((element, quantity, index))
+        if row is None:
+            raise WriteError(f"internal: reference value {element} {quantity} {index} has no cell")
+        return f"{_q(METHOD_SHEET)}!$D${row}"
+
+    by_sheet_row = {(r.sheet, r.row): r for r in run.rows}
+    sheets = {s.name: s for s in book.sheets}
+    for table in run.tables:
+        if table.column("formula") is None or table.sheet not in sheets:
+            continue
+        rows = [by_sheet_row.get((table.sheet, table.first_row + i)) for i in range(table.n_rows)]
+        addition = _table_columns(table, rows, sheets[table.sheet], refs, plan)
+        if addition is not None:
+            plan.additions.append(addition)
+
+    _plan_notes(run, plan)
+    plan.new_sheets.append(NewSheet(METHOD_SHEET, method_rows, col_widths=(22, 26, 8, 16, 14, 90)))
+    plan.new_sheets.append(_flags_sheet(run))
+    return plan
+
+
+def _table_columns(table: Table, rows: Sequence[RowResult | None], sheet: SheetCells,
+                   refs: Callable[[str, str, int], str], plan: AnnotationPlan) -> SheetAddition | None:
+    names = [n for n in VALUE_HEADINGS if any(r is not None and n in r.values for r in rows)]
+    extra = sorted({n for r in rows if r is not None for n in r.values} - set(VALUE_HEADINGS))
+    if not names and not extra and not any(r is not None and r.flags for r in rows):
+        return None
+    start = _last_used_col(sheet, table.header_row - 1, table.last_row - 1) + 2
+    layout: list[tuple[str, str]] = []  # (value name, "value" | "uncertainty")
+    for n in names:
+        layout.append((n, "value"))
+        if n in WITH_UNCERTAINTY:
+            layout.append((n, "uncertainty"))
+    for n in extra:
+        layout.append((n, "value"))
+    col_of = {key: start + j for j, key in enumerate(layout)}
+    columns: list[AddedColumn] = []
+    for key in layout:
+        name, part = key
+        cells: list[AddedCell] = []
+        for i, r in enumerate(rows):
+            sheet_row = table.first_row + i
+            v = r.values.get(name) if r is not None else None
+            if v is None:
+                cells.append(AddedCell(None))
+                continue
+            number = v.value if part == "value" else v.uncertainty
+            if number is None or (isinstance(number, float) and math.isnan(number)):
+                cells.append(AddedCell(None))
+                continue
+            formula = None
+            if part == "value" and r is not None and r.trace:
+                formula = _value_formula(name, r, sheet_row, col_of, refs)
+            if formula is not None:
+                plan.formulas.append((table.sheet, a1(sheet_row - 1, col_of[key]), formula,
+                                      float(number)))
+            cells.append(AddedCell(float(number), formula=formula, style="number"))
+        heading = VALUE_HEADINGS.get(name, _heading_of(name, rows))
+        if part == "uncertainty":
+            heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
+        columns.append(AddedColumn(heading, cells, number_format="0.0"))
+    flags_cells = [AddedCell(_flag_text(r.flags), style=_worst(r.flags).value if r.flags else None)
+                   if r is not None and r.flags else AddedCell(None) for r in rows]
+    columns.append(AddedColumn("sheetcycle flags", flags_cells, number_format=None, width=60))
+    header_cell = a1(table.header_row - 1, min(c.col for c in table.columns))
+    return SheetAddition(table.sheet, table.header_row, table.first_row, start, columns,
+                         header_style_cell=header_cell)
+
+
+def _heading_of(name: str, rows: Sequence[RowResult | None]) -> str:
+    unit = next((r.values[name].unit for r in rows if r is not None and name in r.values), "")
+    label = name.replace("_", " ")
+    return f"{label} / {unit}" if unit else label
+
+
+def _value_formula(name: str, r: RowResult, sheet_row: int,
+                   col_of: Mapping[tuple[str, str], int],
+                   refs: Callable[[str, str, int], str]) -> str | None:
+    trace = r.trace
+    if name == "lattice_enthalpy":
+        return cycle_formula(trace, "lattice_enthalpy", refs)
+    if name == "closure_residual":
+        given = trace["exprs"].get("lattice_enthalpy")
+        lat = col_of.get(("lattice_enthalpy", "value"))
+        if given is None or lat is None:
+            return None
+        return f"{a1(sheet_row - 1, lat)}-{_paren(given)}"
+    solved = trace.get("solved")
+    if solved is not None and name in ("formation_enthalpy", "electron_gain_enthalpy",
+                                       "atomization_enthalpy", "ionization_energy"):
+        return cycle_formula(trace, solved, refs)
+    return None
+
+
+def _plan_notes(run: RunResult, plan: AnnotationPlan) -> None:
+    by_cell: dict[tuple[str, str], list[Flag]] = {}
+    for f in [f for r in run.rows for f in r.flags] + list(run.file_flags):
+        if f.sheet and f.cell:
+            by_cell.setdefault((f.sheet, f.cell), []).append(f)
+    for (sheet, cell), flags in by_cell.items():
+        worst = _worst(flags)
+        assert worst is not None
+        plan.notes.append(CellNote(sheet, cell, "sheetcycle\n" + _flag_text(flags), worst.value))
+
+
+def _method_rows(run: RunResult) -> tuple[list[list[AddedCell | None]], int]:
+    """The method sheet's rows, and the 1-based row of the first reference value."""
+    t = AddedCell
+    rows: list[list[AddedCell | None]] = [
+        [t("sheetcycle: method, conventions and reference values", style="header")],
+        [t("version"), t(run.version)],
+        [t("input"), t(Path(run.input).name)],
+        [],
+        [t("conventions", style="header")],
+        [t("lattice enthalpy"), t("dissociation convention: MaXb(s) → a M^p+(g) + b X^q−(g), "
+                                  "positive, kJ per mol of formula unit")],
+        [t("electron gain"), t("thermochemical electron-gain enthalpy: negative when energy is "
+                               "released (Cl ≈ −349 kJ/mol); a second gain is positive")],
+        [t("Born-Haber cycle"), t("ΔH_L = a·(ΔatH(M) + IE1 + … + IEp) + b·(ΔatH(X) + ΔegH1 + … "
+                                  "+ ΔegHq) − ΔfH(MaXb, s)")],
+        [t("closure residual"), t("cycle lattice enthalpy minus the given lattice enthalpy; "
+                                  "flagged when larger than max(2σ, tolerance)")],
+        [t("uncertainties"), t("a value used n times contributes n·σ; distinct values add in "
+                               "quadrature; uncertainty cells hold values, not formulas")],
+        [t("missing values"), t("blank, text and spreadsheet errors are missing, never zero")],
+        [t("formulas"), t("every computed value that a formula can express is a formula over the "
+                          "row's own cells and the reference values below; edit an input and "
+                          "it recomputes")],
+        [],
+        [t("settings", style="header")],
+    ]
+    for key, value in run.settings.items():
+        rows.append([t(str(key)), t(_setting_text(value))])
+    rows += [[], [t("flag fills", style="header")]]
+    for sev in ("error", "warning", "note"):
+        rows.append([t(sev, style=sev), t({"error": "the row's result is missing or wrong because "
+                                                    "of this",
+                                           "warning": "a result exists but should be looked at",
+                                           "note": "information: a convention applied, a default "
+                                                   "used"}[sev])])
+    rows += [[], [t("reference values used", style="header")],
+             [t("element", style="header"), t("quantity", style="header"),
+              t("index", style="header"), t("value / kJ mol⁻¹", style="header"),
+              t("uncertainty", style="header"), t("source", style="header")]]
+    start = len(rows) + 1
+    for use in run.references:
+        unc = None if use.uncertainty != use.uncertainty else use.uncertainty
+        rows.append([t(use.element), t(use.quantity), t(float(use.index), style="number"),
+                     t(use.value, style="number"), t(unc, style="number") if unc is not None
+                     else None, t(use.source)])
+    rows += [[], [t("caution", style="header")],
+             [t("safety"), t("computed enthalpies are estimates from tabulated data; where they "
+                             "point to a large heat release, calorimetry and a hazard assessment "
+                             "come before any scale-up, and local codes and licensed practice "
+                             "govern")]]
+    return rows, start
+
+
+def _setting_text(value: object) -> str:
+    if isinstance(value, (list, tuple)):
+        return ", ".join(map(str, value)) if value else "none"
+    return "none" if value is None else str(value)
+
+
+def _flags_sheet(run: RunResult) -> NewSheet:
+    t = AddedCell
+    rows: list[list[AddedCell | None]] = [[t(h, style="header") for h in
+                                           ("sheet", "cell", "code", "severity", "message")]]
+    links: dict[tuple[int, int], str] = {}
+    flags = [f for r in run.rows for f in r.flags] + list(run.file_flags)
+    for f in flags:
+        r0 = len(rows)
+        rows.append([t(f.sheet or ""), t(f.cell or ""), t(f.code),
+                     t(f.severity.value, style=f.severity.value), t(f.message)])
+        if f.sheet and f.cell:
+            links[(r0, 1)] = f"{_q(f.sheet)}!{f.cell}"
+    return NewSheet(FLAGS_SHEET, rows, col_widths=(16, 8, 22, 9, 110), links=links)
+
+
+def write_annotated_copy(run: RunResult, book: WorkbookCells, src: Path, dst: Path, *,
+                         force: bool = False,
+                         verify: Callable[[AnnotationPlan, WorkbookCells], None] | None = None,
+                         ) -> AnnotationPlan:
+    """Plan, verify every formula, and write the annotated copy (all or nothing)."""
+    plan = plan_annotations(run, book)
+    (verify or verify_formulas)(plan, book)
+    write_annotated(src, dst, additions=plan.additions, notes=plan.notes,
+                    new_sheets=plan.new_sheets, force=force)
+    return plan
+
+
+def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1e-9) -> None:
+    """Evaluate every planned formula with ``formulas`` and compare with the engine's value.
+
+    Formulas of the same shape (the same text once row numbers and reference rows are
+    abstracted) are compiled once and evaluated on arrays. A mismatch is a bug in the tool,
+    so it stops the write with an error rather than handing out a wrong formula.
+    """
+    from sheetcycle.io.formula_check import check_formulas
+
+    values = _added_values(plan)
+    problems = check_formulas(plan.formulas, book, values, rel=rel)
+    if problems:
+        first = problems[0]
+        raise WriteError(f"internal check failed: the formula in {first[0]}!{first[1]} "
+                         f"(={first[2]}) gives {first[4]!r}, the engine {first[3]!r}; "
+                         f"{len(problems)} formula(s) disagree; nothing was written")
+
+
+def _added_values(plan: AnnotationPlan) -> dict[tuple[str, str], object]:
+    """Values of every cell the plan adds (formulas may point at each other and at them)."""
+    out: dict[tuple[str, str], object] = {}
+    for add in plan.additions:
+        for j, col in enumerate(add.columns):
+            for i, cell in enumerate(col.cells):
+                if cell.value is not None:
+                    out[(add.sheet, a1(add.first_row - 1 + i, add.start_col + j))] = cell.value
+    for sheet in plan.new_sheets:
+        for r, row in enumerate(sheet.rows):
+            for c, cell in enumerate(row):
+                if cell is not None and cell.value is not None:
+                    out[(sheet.name, a1(r, c))] = cell.value
+    return out
