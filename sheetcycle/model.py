@@ -92,6 +92,9 @@ class Column:
     texts: tuple[str | None, ...] | None = None
     note: str | None = None  # why it was (not) recognised, for `inspect`
     atoms: FloatArray | None = None  # atoms per formula unit, for columns in per-atom units
+    # True where the number was read out of text ('−411 ± 2'): a spreadsheet formula cannot
+    # use such a cell, so outputs give the value without a formula there.
+    from_text: npt.NDArray[np.bool_] | None = None
 
 
 @dataclass(frozen=True)

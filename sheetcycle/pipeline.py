@@ -201,6 +201,9 @@ class _Term:
             i = int(i)
             cell = a1(table.first_row - 1 + i, col.col)
             self.sources[i] = f"{label}: {table.sheet}!{cell}"
+            if col.from_text is not None and col.from_text[i]:
+                self.exprs[i] = None  # a number read out of text: no formula can use the cell
+                continue
             factor = col.factor * (col.atoms[i] if col.atoms is not None else 1.0)
             base = cell if factor == 1.0 else f"{cell}*{factor:.15g}"
             self.exprs[i] = transform.format(base)

@@ -105,8 +105,17 @@ def test_annotate_reads_lab_book_and_reports(tmp_path: Path) -> None:
     nai = rows[12]["values"]["lattice_enthalpy"]["value"]
     assert nai == pytest.approx(704, rel=0.015)  # CRC, from memory
 
-    wb = openpyxl.load_workbook(out, read_only=True)
-    assert {"About", "Flags", "References"} <= set(wb.sheetnames)
+    # -o hands back the user's own workbook with additions: our two sheets come last
+    wb = openpyxl.load_workbook(out)
+    assert wb.sheetnames == ["Halides", "sheetcycle method", "sheetcycle flags"]
+    ws = wb["Halides"]
+    assert ws["A1"].value == "Group screening 2026 — halides and oxides"  # nothing lost
+    assert ws["B12"].value == "=-68.79*4.184"  # the user's formula is still a formula
+    headers = [c.value for c in ws[4]]
+    assert headers[6] is None and headers[7] == "ΔH_L cycle / kJ mol⁻¹"  # one blank column
+    assert str(ws["H5"].value).startswith("=")  # computed values are formulas …
+    assert ws["H8"].value == pytest.approx(caf2["value"])  # … except over text cells: a value
+    assert ws["D7"].comment is not None and "cycle does not close" in ws["D7"].comment.text
     wb.close()
 
 

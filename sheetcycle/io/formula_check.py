@@ -84,6 +84,13 @@ def _value(book: WorkbookCells, extra: Mapping[tuple[str, str], object],
         return math.nan
 
 
+def _as_float(x: object) -> float:
+    try:
+        return float(x)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return math.nan  # a spreadsheet error value
+
+
 def check_formulas(
     formulas_: Sequence[tuple[str, str, str, float]],
     book: WorkbookCells,
@@ -106,12 +113,10 @@ def check_formulas(
         columns = [np.array([_value(book, extra, refs[j]) for _, refs in members])
                    for j in range(n_inputs)]
         order = [int(name[2:]) - 1 for name in fn.inputs]
-        try:
-            out = np.asarray(fn(*[columns[j] for j in order]), dtype=float).reshape(-1)
-        except (TypeError, ValueError):
-            out = np.full(len(members), math.nan)
-        if out.shape[0] != len(members):
-            out = np.broadcast_to(out, (len(members),))
+        raw = np.asarray(fn(*[columns[j] for j in order]), dtype=object).reshape(-1)
+        if raw.shape[0] != len(members):
+            raw = np.broadcast_to(raw, (len(members),))
+        out = np.array([_as_float(x) for x in raw])
         for (k, _), got in zip(members, out, strict=True):
             sheet, cell, formula, expected = formulas_[k]
             scale = max(abs(expected), 1.0)

@@ -312,7 +312,9 @@ def find_tables(
         columns.append(Column(header=header, col=c, quantity=quantity, index=index,
                               unit=conv.unit_text, factor=conv.factor, convention=convention,
                               values=values, uncertainties=uncs,
-                              atoms=atoms() if conv.per_entity == "atom" else None))
+                              atoms=atoms() if conv.per_entity == "atom" else None,
+                              from_text=np.fromiter((type(v) is str for v in cells), dtype=bool,
+                                                    count=len(cells))))
 
     columns = _pair_uncertainties(columns, rows, first, n, sheet.name, flags)
     table = Table(sheet=sheet.name, header_row=hr + 1, first_row=first + 1,
