@@ -10,6 +10,7 @@ import argparse
 import glob
 import os
 import sys
+from concurrent.futures import ProcessPoolExecutor
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -70,6 +71,8 @@ def _parser() -> argparse.ArgumentParser:
                         "of the input")
     a.add_argument("--force", action="store_true", help="overwrite existing outputs")
     a.add_argument("-q", "--quiet", action="store_true", help="print only errors")
+    a.add_argument("-j", "--jobs", type=int, default=0, metavar="N",
+                   help="files processed in parallel (default: one process per core)")
     common(a)
 
     i = sub.add_parser("inspect", help="show which tables, columns and units are recognised")
@@ -127,11 +130,13 @@ def _out_suffix(src: Path, args: argparse.Namespace) -> str:
 
 
 def _annotate(args: argparse.Namespace) -> int:
-    from sheetcycle.api import annotate, load_reference_file
+    from sheetcycle.api import load_reference_file
     from sheetcycle.pipeline import Settings
 
     if args.tolerance < 0:
         raise UsageError("--tolerance must not be negative", found=args.tolerance)
+    if args.jobs < 0:
+        raise UsageError("--jobs must not be negative", found=args.jobs)
     paths = _expand(args.inputs)
     if not paths:
         raise UsageError("no input files found", found=" ".join(args.inputs))
@@ -141,21 +146,43 @@ def _annotate(args: argparse.Namespace) -> int:
     settings = Settings(tolerance=args.tolerance, column_overrides=_overrides(args),
                         reference_files=tuple(args.reference), extra_references=tuple(extra))
     many = len(paths) > 1
+    jobs = [(src, _target(args.output, src, many, _out_suffix(src, args)),
+             _target(args.json_path, src, many, ".report.json")) for src in paths]
+    workers = min(len(jobs), args.jobs or os.cpu_count() or 1)
+    if workers > 1:
+        # Files are independent: one process each, results reported in input order.
+        with ProcessPoolExecutor(max_workers=workers) as pool:
+            outcomes = list(pool.map(_one_file, jobs, [settings] * len(jobs),
+                                     [args.force] * len(jobs), [args.results_book] * len(jobs)))
+    else:
+        outcomes = [_one_file(job, settings, args.force, args.results_book) for job in jobs]
     failed = 0
-    for src in paths:
-        try:
-            run = annotate(src, _target(args.output, src, many, _out_suffix(src, args)),
-                           json_path=_target(args.json_path, src, many, ".report.json"),
-                           settings=settings, force=args.force, results_book=args.results_book)
-        except SheetcycleError as exc:
+    for ok, text in outcomes:
+        if not ok:
             failed += 1
-            print(f"sheetcycle: {exc}", file=sys.stderr)
-            continue
-        if not args.quiet:
-            print(_summary(run))
+            print(f"sheetcycle: {text}", file=sys.stderr)
+        elif not args.quiet:
+            print(text)
     if many and not args.quiet:
         print(f"{len(paths) - failed} of {len(paths)} files done, {failed} failed")
     return 1 if failed else 0
+
+
+def _one_file(job: tuple[Path, Path | None, Path | None], settings, force: bool,  # type: ignore[no-untyped-def]
+              results_book: bool) -> tuple[bool, str]:
+    """Annotate one file; (True, summary) or (False, the one-line error). Never raises."""
+    from sheetcycle.api import annotate
+
+    src, out, json_path = job
+    try:
+        run = annotate(src, out, json_path=json_path, settings=settings, force=force,
+                       results_book=results_book)
+    except SheetcycleError as exc:
+        return False, str(exc)
+    except Exception as exc:  # a bug must not stop the other files or print a traceback
+        return False, (f"{src}: internal error ({type(exc).__name__}: {exc}); nothing was "
+                       "written for this file; please report it")
+    return True, _summary(run)
 
 
 def _inspect(args: argparse.Namespace) -> int:

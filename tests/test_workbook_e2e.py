@@ -215,3 +215,20 @@ def test_python_module_entry_point(tmp_path: Path) -> None:
     proc = subprocess.run([sys.executable, "-m", "sheetcycle", "inspect", str(src)],
                           capture_output=True, text=True, check=False)
     assert proc.returncode == 0 and "formation_enthalpy" in proc.stdout
+
+
+def test_batch_of_files_in_parallel_with_one_bad(tmp_path: Path,
+                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    folder = tmp_path / "in"
+    folder.mkdir()
+    lab_book(folder / "a.xlsx")
+    lab_book(folder / "b.xlsx")
+    (folder / "c.xlsx").write_bytes(b"PK\x03\x04 truncated")
+    out, reports = tmp_path / "out", tmp_path / "reports"
+    code = run_cli("annotate", str(folder), "-o", str(out), "--json", str(reports), "-j", "2")
+    assert code == 1  # one file failed
+    captured = capsys.readouterr()
+    assert "2 of 3 files done, 1 failed" in captured.out
+    assert "c.xlsx" in captured.err and "Traceback" not in captured.err
+    assert sorted(p.name for p in out.iterdir()) == ["a.annotated.xlsx", "b.annotated.xlsx"]
+    assert sorted(p.name for p in reports.iterdir()) == ["a.report.json", "b.report.json"]
