@@ -179,25 +179,23 @@ def child_sheetcycle(src: Path, dst: Path, rows: int, lazy: bool) -> None:
     r = np.arange(rows)
     cols = {c: np.round(((r * 7919 + c * 104729) % 100000) / 97.0 - 500.0, 4) for c in (1, 2, 3)}
     specs = [
-        ("sum (kJ/mol)", "B{n}+C{n}+D{n}", cols[1] + cols[2] + cols[3]),
-        ("B in kcal/mol", "B{n}/4.184", cols[1] / 4.184),
-        ("C minus offset", "C{n}-123.25", cols[2] - 123.25),
-        ("B x D", "B{n}*D{n}", cols[1] * cols[3]),
+        ("sum (kJ/mol)", lambda n: f"B{n}+C{n}+D{n}", cols[1] + cols[2] + cols[3]),
+        ("B in kcal/mol", lambda n: f"B{n}/4.184", cols[1] / 4.184),
+        ("C minus offset", lambda n: f"C{n}-123.25", cols[2] - 123.25),
+        ("B x D", lambda n: f"B{n}*D{n}", cols[1] * cols[3]),
     ]
     added = []
     for header, formula, values in specs:
         vals = values.tolist()
         if lazy:
 
-            def make(i: int, f: str = formula, v: list = vals) -> AddedCell:
-                return AddedCell(v[i], f.format(n=i + 2))
+            def make(i: int, f=formula, v: list = vals) -> AddedCell:
+                return AddedCell(v[i], f(i + 2))
 
             added.append(AddedColumn(header, _LazyColumn(rows, make)))
         else:
             added.append(
-                AddedColumn(
-                    header, [AddedCell(v, formula.format(n=i + 2)) for i, v in enumerate(vals)]
-                )
+                AddedColumn(header, [AddedCell(v, formula(i + 2)) for i, v in enumerate(vals)])
             )
     step = max(rows // N_NOTES, 1)
     sev = ("error", "warning", "note")
