@@ -361,14 +361,14 @@ def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1
                          f"{len(problems)} formula(s) disagree; nothing was written")
 
 
-def _added_values(plan: AnnotationPlan) -> dict[tuple[str, str], object]:
+def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
     """Values of every cell the plan adds (formulas may point at each other and at them)."""
-    out: dict[tuple[str, str], object] = {}
+    out: dict[tuple[str, int, int], object] = {}
     for add in plan.additions:
         for j, col in enumerate(add.columns):
             for i, cell in enumerate(col.cells):
                 if cell.value is not None:
-                    out[(add.sheet, a1(add.first_row - 1 + i, add.start_col + j))] = cell.value
+                    out[(add.sheet, add.first_row - 1 + i, add.start_col + j)] = cell.value
     for sheet in plan.new_sheets:
         for r, row in enumerate(sheet.rows):
             for c, cell in enumerate(row):

@@ -57,17 +57,13 @@ def _compiled(template: str) -> Any:
     return formulas.Parser().ast("=" + template)[1].compile()
 
 
-def _value(book: WorkbookCells, extra: Mapping[tuple[str, str], object],
+def _value(grids: Mapping[str, list[list[object]]], extra: Mapping[tuple[str, int, int], object],
            key: tuple[str, int, int]) -> float:
-    sheet, r, c = key
-    from sheetcycle.io.tables import a1
-
-    if (sheet, a1(r, c)) in extra:
-        v = extra[(sheet, a1(r, c))]
-    else:
-        try:
-            grid = book.sheet(sheet).rows
-        except (KeyError, AttributeError):
+    v = extra.get(key, _MISSING)
+    if v is _MISSING:
+        sheet, r, c = key
+        grid = grids.get(sheet)
+        if grid is None:
             return math.nan
         v = grid[r][c] if r < len(grid) and c < len(grid[r]) else None
     if v is None:
@@ -84,6 +80,9 @@ def _value(book: WorkbookCells, extra: Mapping[tuple[str, str], object],
         return math.nan
 
 
+_MISSING = object()
+
+
 def _as_float(x: object) -> float:
     try:
         return float(x)  # type: ignore[arg-type]
@@ -94,14 +93,15 @@ def _as_float(x: object) -> float:
 def check_formulas(
     formulas_: Sequence[tuple[str, str, str, float]],
     book: WorkbookCells,
-    extra: Mapping[tuple[str, str], object],
+    extra: Mapping[tuple[str, int, int], object],
     *,
     rel: float = 1e-9,
 ) -> list[tuple[str, str, str, float, float]]:
     """Evaluate (sheet, cell, formula, expected) and return the ones that disagree.
 
-    ``extra`` gives the values of cells the tool adds itself (its reference-value cells).
+    ``extra`` gives the values of cells the tool adds itself, keyed by (sheet, row0, col0).
     """
+    grids = {s.name: s.rows for s in book.sheets}
     groups: dict[str, list[tuple[int, list[tuple[str, int, int]]]]] = {}
     for k, (sheet, _cell, formula, _v) in enumerate(formulas_):
         template, refs = formula_shape(formula, sheet)
@@ -110,7 +110,7 @@ def check_formulas(
     for template, members in groups.items():
         fn = _compiled(template)
         n_inputs = len(members[0][1])
-        columns = [np.array([_value(book, extra, refs[j]) for _, refs in members])
+        columns = [np.array([_value(grids, extra, refs[j]) for _, refs in members])
                    for j in range(n_inputs)]
         order = [int(name[2:]) - 1 for name in fn.inputs]
         raw = np.asarray(fn(*[columns[j] for j in order]), dtype=object).reshape(-1)
