@@ -373,5 +373,5 @@ def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
         for r, row in enumerate(sheet.rows):
             for c, cell in enumerate(row):
                 if cell is not None and cell.value is not None:
-                    out[(sheet.name, a1(r, c))] = cell.value
+                    out[(sheet.name, r, c)] = cell.value
     return out
