@@ -217,26 +217,34 @@ def _ref_term(
     used: dict[tuple[str, str, int], ReferenceUse],
     use_key: Callable[[Any], tuple[str, str, int]],
 ) -> _Term:
-    """A term from the reference data, looked up once per distinct key."""
-    term = _Term.empty(n)
-    cache: dict[Any, RefValue | None] = {}
-    for i, key in enumerate(keys):
-        if key is None:
-            continue
-        if key not in cache:
-            cache[key] = lookup(key)
-        ref = cache[key]
+    """A term from the reference data, looked up once per distinct key, spread by index."""
+    slot: dict[Any, int] = {}
+    found: list[RefValue] = []
+    texts: list[str] = []
+    tokens: list[str] = []
+    for key in dict.fromkeys(k for k in keys if k is not None):
+        ref = lookup(key)
         if ref is None:
             continue
-        term.values[i] = ref.value
-        term.sigmas[i] = ref.uncertainty
-        term.sources[i] = f"{label(key)}: {ref.source}"
+        slot[key] = len(found)
+        found.append(ref)
+        texts.append(f"{label(key)}: {ref.source}")
         element, quantity, index = use_key(key)
-        term.exprs[i] = ref_token(element, quantity, index)
+        tokens.append(ref_token(element, quantity, index))
         used.setdefault((element, quantity, index),
                         ReferenceUse(element, quantity, index, ref.value, ref.uncertainty,
                                      ref.unit, ref.source))
-    return term
+    idx = np.fromiter((slot.get(k, -1) if k is not None else -1 for k in keys), dtype=np.intp,
+                      count=n)
+    have = idx >= 0
+    vals = np.array([r.value for r in found] + [np.nan])
+    sig = np.array([r.uncertainty for r in found] + [np.nan])
+    pick = np.where(have, idx, len(found))
+    texts.append(None)  # type: ignore[arg-type]
+    tokens.append(None)  # type: ignore[arg-type]
+    src = [texts[j] for j in pick.tolist()]
+    exprs = [tokens[j] for j in pick.tolist()]
+    return _Term(vals[pick], sig[pick], src, exprs, np.zeros(n, dtype=bool))
 
 
 def _assign(
@@ -292,6 +300,46 @@ def _int_or_none(col: Column | None, i: int) -> int | None:
         digits = t.strip("+-")
         return sign * int(digits) if digits.isdigit() else None
     return None
+
+
+@dataclass
+class _TableTrace:
+    """The cycle of every row of a table, shared by the rows' lazy trace views."""
+
+    def __init__(self, coefficients: np.ndarray, exprs: dict[str, list[str | None]],
+                 completed: np.ndarray, solved: list[str | None]) -> None:
+        self.coefficients = coefficients
+        self.exprs = exprs
+        self.completed = completed
+        self.solved = solved
+
+
+class _TraceView(Mapping[str, Any]):
+    """One row's trace (coefficients, exprs, values, solved) without a dict per row."""
+
+    __slots__ = ("_i", "_t")
+    _KEYS = ("coefficients", "exprs", "values", "solved")
+
+    def __init__(self, t: _TableTrace, i: int) -> None:
+        self._t, self._i = t, i
+
+    def __getitem__(self, key: str) -> Any:
+        t, i = self._t, self._i
+        if key == "coefficients":
+            return dict(zip(TERMS, t.coefficients[i].tolist(), strict=True))
+        if key == "exprs":
+            return {name: t.exprs[name][i] for name in TERMS}
+        if key == "values":
+            return dict(zip(TERMS, t.completed[i].tolist(), strict=True))
+        if key == "solved":
+            return t.solved[i]
+        raise KeyError(key)
+
+    def __iter__(self):  # type: ignore[no-untyped-def]
+        return iter(self._KEYS)
+
+    def __len__(self) -> int:
+        return len(self._KEYS)
 
 
 @dataclass
@@ -581,6 +629,18 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
     names, match = residual_slips(sol.residual, tol, candidates)
     lat_slip = ratio_slips(v[:, li], cyc.value)
 
+    statuses = sol.status.tolist()
+    solved_k = sol.solved.tolist()
+    lat_rows = ((cyc.status == CycleStatus.SOLVED) & (cyc.solved == li)).tolist()
+    exceeds = sol.exceeds.tolist()
+    no_ions, is_solved, is_closed = (int(CycleStatus.NO_IONS), int(CycleStatus.SOLVED),
+                                     int(CycleStatus.CLOSED))
+    shared = _TableTrace(sol.coefficients, {name: terms[name].exprs for name in TERMS},
+                         sol.completed,
+                         [TERMS[k] if st == is_solved else None
+                          for st, k in zip(statuses, solved_k, strict=True)])
+    notes_lat = _sigma_notes(terms, cyc, n)
+    notes_res = _sigma_notes(terms, sol, n)
     results: list[RowResult] = []
     for i in range(n):
         formula = fcol.texts[i]
@@ -589,29 +649,24 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
         results.append(rr)
         if not formula:
             continue
-        status = int(sol.status[i])
-        fcell = a1(table.first_row - 1 + i, fcol.col)
-        if status == CycleStatus.NO_IONS:
+        status = statuses[i]
+        if status == no_ions:
             continue
-        rr.trace = {
-            "coefficients": {name: float(sol.coefficients[i, k]) for k, name in enumerate(TERMS)},
-            "exprs": {name: terms[name].exprs[i] for name in TERMS},
-            "values": {name: float(sol.completed[i, k]) for k, name in enumerate(TERMS)},
-            "solved": TERMS[int(sol.solved[i])] if status == CycleStatus.SOLVED else None,
-        }
+        fcell = a1(table.first_row - 1 + i, fcol.col)
+        rr.trace = _TraceView(shared, i)
         sources_cycle = _sources(terms, i, exclude=("lattice_enthalpy",))
-        if int(cyc.status[i]) == CycleStatus.SOLVED and int(cyc.solved[i]) == li:
+        if lat_rows[i]:
             rr.values["lattice_enthalpy"] = ComputedValue(
                 float(cyc.value[i]), float(cyc.sigma[i]), KJ,
                 "Born-Haber cycle: ΔH_L = a·(ΔatH(M) + ΣIE) + b·(ΔatH(X) + ΣΔegH) − ΔfH; "
-                "dissociation convention" + _sigma_note(terms, i, cyc),
+                "dissociation convention" + notes_lat[i],
                 tuple(sources_cycle))
-        if status == CycleStatus.CLOSED:
+        if status == is_closed:
             rr.values["closure_residual"] = ComputedValue(
                 float(sol.residual[i]), float(sol.residual_sigma[i]), KJ,
                 "cycle lattice enthalpy minus the given lattice enthalpy"
-                + _sigma_note(terms, i, sol), tuple(_sources(terms, i)))
-            if sol.exceeds[i]:
+                + notes_res[i], tuple(_sources(terms, i)))
+            if exceeds[i]:
                 cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
                 msg = (f"the cycle does not close: from the other terms the lattice enthalpy is "
                        f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
@@ -621,8 +676,8 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
                                       int(p[i]), int(q[i]), a[i], b[i])
                 flags.append(Flag("cycle-open", Severity.WARNING, msg + (f". {hint}" if hint else ""),
                                   table.sheet, cell))
-        elif status == CycleStatus.SOLVED:
-            k = int(sol.solved[i])
+        elif status == is_solved:
+            k = solved_k[i]
             name = TERMS[k]
             out_name = {"formation_enthalpy": "formation_enthalpy",
                         "electron_gain_1": "electron_gain_enthalpy",
@@ -651,16 +706,24 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
     return results
 
 
-def _sigma_note(terms: dict[str, _Term], i: int, sol: Any) -> str:
-    """Which terms the uncertainty leaves out, when some have none."""
-    if sol.sigma_complete[i]:
-        return ""
-    names = [TERM_LABELS[name] for name, t in terms.items()
-             if (name != "lattice_enthalpy" or sol.status[i] == CycleStatus.CLOSED)
-             and sol.coefficients[i, IDX[name]] != 0
-             and not math.isnan(t.values[i]) and math.isnan(t.sigmas[i])]
-    return ("; the uncertainty counts only the terms that have one (none given for: "
-            + ", ".join(names) + ")") if names else ""
+def _sigma_notes(terms: dict[str, _Term], sol: Any, n: int) -> list[str]:
+    """Per row: which terms the uncertainty leaves out, when some have none ('' otherwise)."""
+    names = [name for name in TERMS]
+    lacking = np.stack([
+        (sol.coefficients[:, IDX[name]] != 0) & ~np.isnan(terms[name].values)
+        & np.isnan(terms[name].sigmas)
+        & ((name != "lattice_enthalpy") | (sol.status == CycleStatus.CLOSED))
+        for name in names], axis=1)
+    cache: dict[bytes, str] = {}
+    out: list[str] = []
+    for row in lacking:
+        key = row.tobytes()
+        if key not in cache:
+            missing = [TERM_LABELS[names[k]] for k in np.nonzero(row)[0]]
+            cache[key] = ("; the uncertainty counts only the terms that have one (none given "
+                          "for: " + ", ".join(missing) + ")") if missing else ""
+        out.append(cache[key])
+    return out
 
 
 def _last_ie(ref: ReferenceData, cat: Sequence[str | None], p: np.ndarray) -> np.ndarray:
@@ -763,8 +826,12 @@ def run_tables(
                                                   ref=ref, settings=settings,
                                                   file_flags=file_flags)))
     file_flags = _route_to_rows(file_flags, rows)
-    pointed = {tok for r in rows for e in r.trace.get("exprs", {}).values() if e
-               for tok in _TOKEN.findall(e)}
+    exprs: set[str] = set()
+    for shared in {id(r.trace._t): r.trace._t for r in rows
+                   if isinstance(r.trace, _TraceView)}.values():
+        for row_exprs in shared.exprs.values():
+            exprs.update(e for e in row_exprs if e)
+    pointed = {tok for e in exprs for tok in _TOKEN.findall(e)}
     references = [u for key, u in used.items() if ref_token(*key) in pointed]
     return RunResult(version=__version__, input=str(path), tables=list(tables), rows=rows,
                      references=sorted(references, key=lambda r: (r.element, r.quantity, r.index)),
