@@ -20,3 +20,23 @@ __all__ = ["TABLE_PASSES", "WORKBOOK_PASSES"]
 
 TABLE_PASSES: list[Callable[[TableContext], None]] = []
 WORKBOOK_PASSES: list[Callable[[WorkbookContext], list[RowResult]]] = []
+
+
+def _solution(ctx: TableContext) -> None:
+    from sheetcycle.solution_pass import solution_pass
+
+    solution_pass(ctx)
+
+
+TABLE_PASSES.append(_solution)
+
+
+def _reactions(ctx: WorkbookContext) -> list[RowResult]:
+    from sheetcycle.reaction_pass import reaction_pass
+
+    return reaction_pass(ctx)
+
+
+WORKBOOK_PASSES.append(_reactions)
+def _theory(ctx: TableContext) -> None: __import__("sheetcycle.theory").theory.theory_pass(ctx)
+TABLE_PASSES.append(_theory)
