@@ -38,3 +38,5 @@ def _reactions(ctx: WorkbookContext) -> list[RowResult]:
 
 
 WORKBOOK_PASSES.append(_reactions)
+def _theory(ctx: TableContext) -> None: __import__("sheetcycle.theory").theory.theory_pass(ctx)
+TABLE_PASSES.append(_theory)
