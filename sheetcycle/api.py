@@ -16,7 +16,7 @@ from sheetcycle.errors import ReadError, UnitError, UsageError
 from sheetcycle.io.cells import WorkbookCells, read_cells
 from sheetcycle.io.tables import ColumnOverride, find_tables
 from sheetcycle.model import Column, Flag, RefValue, RowResult, RunResult, Table
-from sheetcycle.pipeline import Settings, close_table, run_tables
+from sheetcycle.pipeline import Settings, TableContext, close_table, run_tables
 from sheetcycle.units import conversion, to_internal
 
 __all__ = [
@@ -157,7 +157,8 @@ def solve_cycles(
     Keyword arguments name quantities as the reader knows them (``formation_enthalpy``,
     ``lattice_enthalpy``, ``ionization_energy_1``, ``electron_affinity_1``,
     ``atomization_metal`` …); values are in ``unit`` (None or NaN = missing). Missing terms
-    come from the built-in reference data.
+    come from the built-in reference data. The per-table passes run as in a workbook run, so
+    the rows also carry the theoretical lattice energies and the solution enthalpies.
 
     >>> rows = solve_cycles(["NaCl", "MgO"], formation_enthalpy=[-411.2, -601.6])
     >>> round(rows[0].values["lattice_enthalpy"].value)  # doctest: +SKIP
@@ -178,7 +179,14 @@ def solve_cycles(
     from sheetcycle.data import ReferenceData
 
     settings = Settings(tolerance=tolerance)
-    return close_table(table, ReferenceData.builtin(), settings, {}, [])
+    contexts: list[TableContext] = []
+    rows = close_table(table, ReferenceData.builtin(), settings, {}, [], contexts)
+    from sheetcycle.passes import TABLE_PASSES
+
+    for ctx in contexts:
+        for table_pass in TABLE_PASSES:
+            table_pass(ctx)
+    return rows
 
 
 _INDEXED = ("ionization_energy", "electron_affinity")
