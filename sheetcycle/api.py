@@ -46,7 +46,8 @@ class Inspection:
         if self.cache_note:
             lines.append(f"  formula values: {self.cache_note}")
         for t in self.tables:
-            kind = "compounds" if t.column("formula") else "element values"
+            kind = ("compounds" if t.column("formula") else
+                    "reactions" if t.column("reaction_equation") else "element values")
             units = f", units in row {t.units_row}" if t.units_row else ""
             lines.append(f"  sheet '{t.sheet}': header row {t.header_row}{units}, data rows "
                          f"{t.first_row}-{t.last_row} ({t.n_rows} rows of {kind})")

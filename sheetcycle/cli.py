@@ -63,6 +63,16 @@ def _parser() -> argparse.ArgumentParser:
                    help="machine-readable report; with several inputs, a folder")
     a.add_argument("--tolerance", type=float, default=10.0, metavar="KJ",
                    help="closure residuals below max(2σ, KJ) pass (default 10 kJ/mol)")
+    a.add_argument("--covalent-threshold", type=float, default=5.0, metavar="PERCENT",
+                   help="flag covalent character when the cycle value exceeds the ionic models "
+                        "by more than this (default 5 %%)")
+    a.add_argument("--model-spread", type=float, default=10.0, metavar="PERCENT",
+                   help="note when the ionic models disagree by more than this (default 10 %%)")
+    a.add_argument("--hydration-scale", type=float, default=None, metavar="KJ",
+                   help="ΔhydH(H+) of the absolute single-ion scale your hydration columns use "
+                        "(e.g. -1103); without it, 'absolute' columns are assumed on -1103")
+    a.add_argument("--temperature", type=float, default=None, metavar="K",
+                   help="also give reaction enthalpies at this temperature (Kirchhoff's law)")
     a.add_argument("--reference", action="append", default=[], metavar="CSV",
                    help="reference values overriding the built-in ones "
                         "(element,quantity,index,value,unit,uncertainty,source)")
@@ -143,8 +153,14 @@ def _annotate(args: argparse.Namespace) -> int:
     extra = []
     for ref in args.reference:
         extra.extend(load_reference_file(ref))
+    if args.temperature is not None and args.temperature <= 0:
+        raise UsageError("--temperature must be a positive number of kelvin",
+                         found=args.temperature)
     settings = Settings(tolerance=args.tolerance, column_overrides=_overrides(args),
-                        reference_files=tuple(args.reference), extra_references=tuple(extra))
+                        reference_files=tuple(args.reference), extra_references=tuple(extra),
+                        covalent_threshold=args.covalent_threshold,
+                        model_spread=args.model_spread, hydration_scale=args.hydration_scale,
+                        temperature=args.temperature)
     many = len(paths) > 1
     jobs = [(src, _target(args.output, src, many, _out_suffix(src, args)),
              _target(args.json_path, src, many, ".report.json")) for src in paths]

@@ -254,6 +254,7 @@ def _assign(
     assert fcol is not None and fcol.texts is not None
     ccol = table.column("charge_cation")
     acol = table.column("charge_anion")
+    scol = table.column("state")
     out: list[IonAssignment | None] = []
     cache: dict[tuple[str, int | None, int | None], IonAssignment | str] = {}
     for i, text in enumerate(fcol.texts):
@@ -277,6 +278,13 @@ def _assign(
                 if isinstance(exc, FormulaSyntaxError):
                     cache[key] = "formula:" + str(cache[key])
         got = cache[key]
+        if isinstance(got, str) and _not_a_solid(text, scol, i):
+            flags[i].append(Flag("not-ionic-solid", Severity.NOTE,
+                                 f"{text} is not a solid ({_state_of(text, scol, i)}): it has no "
+                                 "lattice and no Born-Haber cycle; its values serve reactions",
+                                 table.sheet, cell))
+            out.append(None)
+            continue
         if isinstance(got, str):
             code = "formula-unreadable" if got.startswith("formula:") else "ions-unassigned"
             msg = got.removeprefix("formula:")
@@ -286,6 +294,23 @@ def _assign(
         else:
             out.append(got)
     return out
+
+
+_FLUID_STATES = frozenset({"l", "g", "aq", "liquid", "gas", "sln"})
+
+
+def _state_of(text: str, scol: Column | None, i: int) -> str | None:
+    if scol is not None and scol.texts is not None and scol.texts[i]:
+        return scol.texts[i].strip().strip("()").lower()
+    try:
+        return parse_formula(text).state
+    except FormulaSyntaxError:
+        return None
+
+
+def _not_a_solid(text: str, scol: Column | None, i: int) -> bool:
+    """A liquid, gas or solute row (a formation-enthalpy list for reactions, say)."""
+    return _state_of(text, scol, i) in _FLUID_STATES
 
 
 def _int_or_none(col: Column | None, i: int) -> int | None:
