@@ -46,15 +46,24 @@ class Inspection:
         if self.cache_note:
             lines.append(f"  formula values: {self.cache_note}")
         for t in self.tables:
-            kind = ("compounds" if t.column("formula") else
-                    "reactions" if t.column("reaction_equation") else "element values")
+            kind = (
+                "compounds"
+                if t.column("formula")
+                else "reactions"
+                if t.column("reaction_equation")
+                else "element values"
+            )
             units = f", units in row {t.units_row}" if t.units_row else ""
-            lines.append(f"  sheet '{t.sheet}': header row {t.header_row}{units}, data rows "
-                         f"{t.first_row}-{t.last_row} ({t.n_rows} rows of {kind})")
+            lines.append(
+                f"  sheet '{t.sheet}': header row {t.header_row}{units}, data rows "
+                f"{t.first_row}-{t.last_row} ({t.n_rows} rows of {kind})"
+            )
             for c in t.columns:
                 letter = _letter(c.col)
                 if c.quantity is None:
-                    lines.append(f"    {letter} '{c.header}': not used ({c.note or 'not recognised'})")
+                    lines.append(
+                        f"    {letter} '{c.header}': not used ({c.note or 'not recognised'})"
+                    )
                     continue
                 what = c.quantity + (f" {c.index}" if c.index else "")
                 bits = [what]
@@ -68,8 +77,10 @@ class Inspection:
                     bits.append(c.note)
                 lines.append(f"    {letter} '{c.header}': " + ", ".join(bits))
         for s in self.sheets_without_table:
-            lines.append(f"  sheet '{s}': no table found (a header row needs a formula or "
-                         "element column and one more recognised column, in the first 30 rows)")
+            lines.append(
+                f"  sheet '{s}': no table found (a header row needs a formula or "
+                "element column and one more recognised column, in the first 30 rows)"
+            )
         for f in self.flags:
             lines.append(f"  [{f.severity.value}] {f.sheet}!{f.cell} {f.code}: {f.message}")
         return "\n".join(lines)
@@ -167,15 +178,32 @@ def solve_cycles(
     """
     n = len(formulas)
     conv = conversion(unit, "energy")
-    cols: list[Column] = [Column(header="formula", col=0, quantity="formula",
-                                 texts=tuple(str(f) if f else None for f in formulas))]
+    cols: list[Column] = [
+        Column(
+            header="formula",
+            col=0,
+            quantity="formula",
+            texts=tuple(str(f) if f else None for f in formulas),
+        )
+    ]
     for j, (name, vals) in enumerate(columns.items(), start=1):
         quantity, index = _split_index(name)
         arr = np.array([np.nan if v is None else float(v) for v in vals], dtype=float)
         if arr.shape != (n,):
-            raise UsageError(f"'{name}' has {arr.shape[0]} values", expected=f"{n} (one per formula)")
-        cols.append(Column(header=name, col=j, quantity=quantity, index=index, unit=unit,
-                           factor=conv.factor, values=to_internal(arr, conv)))
+            raise UsageError(
+                f"'{name}' has {arr.shape[0]} values", expected=f"{n} (one per formula)"
+            )
+        cols.append(
+            Column(
+                header=name,
+                col=j,
+                quantity=quantity,
+                index=index,
+                unit=unit,
+                factor=conv.factor,
+                values=to_internal(arr, conv),
+            )
+        )
     table = Table(sheet="(python)", header_row=1, first_row=2, last_row=n + 1, columns=tuple(cols))
     from sheetcycle.data import ReferenceData
 
@@ -195,13 +223,17 @@ _INDEXED = ("ionization_energy", "electron_affinity")
 
 def _split_index(name: str) -> tuple[str, int]:
     for base in _INDEXED:
-        if name.startswith(base + "_") and name[len(base) + 1:].isdigit():
-            return base, int(name[len(base) + 1:])
+        if name.startswith(base + "_") and name[len(base) + 1 :].isdigit():
+            return base, int(name[len(base) + 1 :])
     return name, 0
 
 
-_REF_QUANTITIES = {"atomization_enthalpy", "ionization_energy", "electron_affinity",
-                   "electron_gain_enthalpy"}
+_REF_QUANTITIES = {
+    "atomization_enthalpy",
+    "ionization_energy",
+    "electron_affinity",
+    "electron_gain_enthalpy",
+}
 
 
 def load_reference_file(path: str | Path) -> list[tuple[str, str, int, RefValue]]:
@@ -219,15 +251,22 @@ def load_reference_file(path: str | Path) -> list[tuple[str, str, int, RefValue]
     reader = csv.DictReader(text.splitlines())
     need = {"element", "quantity", "value", "unit"}
     if not reader.fieldnames or not need <= set(reader.fieldnames):
-        raise ReadError("reference file has the wrong columns", file=str(p),
-                        expected="element,quantity,index,value,unit,uncertainty,source",
-                        found=",".join(reader.fieldnames or []))
+        raise ReadError(
+            "reference file has the wrong columns",
+            file=str(p),
+            expected="element,quantity,index,value,unit,uncertainty,source",
+            found=",".join(reader.fieldnames or []),
+        )
     for line, rec in enumerate(reader, start=2):
         q = (rec.get("quantity") or "").strip()
         where = f"line {line}"
         if q not in _REF_QUANTITIES:
-            raise ReadError(f"{where}: unknown quantity", file=str(p),
-                            expected=" or ".join(sorted(_REF_QUANTITIES)), found=q)
+            raise ReadError(
+                f"{where}: unknown quantity",
+                file=str(p),
+                expected=" or ".join(sorted(_REF_QUANTITIES)),
+                found=q,
+            )
         try:
             conv = conversion((rec.get("unit") or "").strip(), "energy")
             value = float(rec["value"]) * conv.factor
@@ -261,8 +300,11 @@ def load_column_mapping(path: str | Path) -> list[ColumnOverride]:
     allowed = {"sheet", "column", "quantity", "unit", "convention", "index"}
     for k, item in enumerate(items):
         if not isinstance(item, Mapping) or "column" not in item or set(item) - allowed:
-            raise ReadError(f"entry {k + 1} of 'columns' is not understood", file=str(p),
-                            expected="keys among " + ", ".join(sorted(allowed)),
-                            found=dict(item) if isinstance(item, Mapping) else item)
+            raise ReadError(
+                f"entry {k + 1} of 'columns' is not understood",
+                file=str(p),
+                expected="keys among " + ", ".join(sorted(allowed)),
+                found=dict(item) if isinstance(item, Mapping) else item,
+            )
         out.append(ColumnOverride(**{key: item[key] for key in item}))
     return out

@@ -10,8 +10,8 @@ import argparse
 import glob
 import os
 import sys
-from concurrent.futures import ProcessPoolExecutor
 from collections.abc import Sequence
+from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 from sheetcycle import __version__
@@ -29,60 +29,120 @@ def _column_spec(text: str):  # type: ignore[no-untyped-def]
     if "=" not in text:
         raise argparse.ArgumentTypeError(
             f"expected [SHEET:]COLUMN=QUANTITY[:UNIT], e.g. 'D=formation_enthalpy:kcal/mol', "
-            f"found {text!r}")
+            f"found {text!r}"
+        )
     left, right = text.split("=", 1)
     sheet = None
     if ":" in left:
         sheet, left = left.split(":", 1)
     quantity, _, unit = right.partition(":")
-    return ColumnOverride(column=left.strip(), quantity=quantity.strip() or None,
-                          unit=unit.strip() or None, sheet=sheet)
+    return ColumnOverride(
+        column=left.strip(),
+        quantity=quantity.strip() or None,
+        unit=unit.strip() or None,
+        sheet=sheet,
+    )
 
 
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="sheetcycle",
-        description="Close Born-Haber cycles in thermochemistry workbooks and report the results.")
+        description="Close Born-Haber cycles in thermochemistry workbooks and report the results.",
+    )
     p.add_argument("--version", action="version", version=f"sheetcycle {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     def common(sp: argparse.ArgumentParser) -> None:
-        sp.add_argument("--column", action="append", type=_column_spec, default=[],
-                        metavar="[SHEET:]COL=QUANTITY[:UNIT]",
-                        help="say what a column holds, overriding its header "
-                             "(COL is a letter or the header text; QUANTITY 'ignore' drops it)")
-        sp.add_argument("--columns", metavar="FILE",
-                        help="a JSON file of column overrides (see docs/usage.md)")
+        sp.add_argument(
+            "--column",
+            action="append",
+            type=_column_spec,
+            default=[],
+            metavar="[SHEET:]COL=QUANTITY[:UNIT]",
+            help="say what a column holds, overriding its header "
+            "(COL is a letter or the header text; QUANTITY 'ignore' drops it)",
+        )
+        sp.add_argument(
+            "--columns", metavar="FILE", help="a JSON file of column overrides (see docs/usage.md)"
+        )
 
     a = sub.add_parser("annotate", help="compute every cycle and write the results")
-    a.add_argument("inputs", nargs="+", metavar="FILE", help="workbooks (.xlsx .xlsm .xls .ods .csv)")
-    a.add_argument("-o", "--output", metavar="PATH",
-                   help="the input workbook handed back annotated (.xlsx/.xlsm; other formats "
-                        "get a results workbook); with several inputs, a folder")
-    a.add_argument("--json", metavar="PATH", dest="json_path",
-                   help="machine-readable report; with several inputs, a folder")
-    a.add_argument("--tolerance", type=float, default=10.0, metavar="KJ",
-                   help="closure residuals below max(2σ, KJ) pass (default 10 kJ/mol)")
-    a.add_argument("--covalent-threshold", type=float, default=5.0, metavar="PERCENT",
-                   help="flag covalent character when the cycle value exceeds the ionic models "
-                        "by more than this (default 5 %%)")
-    a.add_argument("--model-spread", type=float, default=10.0, metavar="PERCENT",
-                   help="note when the ionic models disagree by more than this (default 10 %%)")
-    a.add_argument("--hydration-scale", type=float, default=None, metavar="KJ",
-                   help="ΔhydH(H+) of the absolute single-ion scale your hydration columns use "
-                        "(e.g. -1103); without it, 'absolute' columns are assumed on -1103")
-    a.add_argument("--temperature", type=float, default=None, metavar="K",
-                   help="also give reaction enthalpies at this temperature (Kirchhoff's law)")
-    a.add_argument("--reference", action="append", default=[], metavar="CSV",
-                   help="reference values overriding the built-in ones "
-                        "(element,quantity,index,value,unit,uncertainty,source)")
-    a.add_argument("--results-book", action="store_true",
-                   help="with -o, write a fresh results workbook instead of the annotated copy "
-                        "of the input")
+    a.add_argument(
+        "inputs", nargs="+", metavar="FILE", help="workbooks (.xlsx .xlsm .xls .ods .csv)"
+    )
+    a.add_argument(
+        "-o",
+        "--output",
+        metavar="PATH",
+        help="the input workbook handed back annotated (.xlsx/.xlsm; other formats "
+        "get a results workbook); with several inputs, a folder",
+    )
+    a.add_argument(
+        "--json",
+        metavar="PATH",
+        dest="json_path",
+        help="machine-readable report; with several inputs, a folder",
+    )
+    a.add_argument(
+        "--tolerance",
+        type=float,
+        default=10.0,
+        metavar="KJ",
+        help="closure residuals below max(2σ, KJ) pass (default 10 kJ/mol)",
+    )
+    a.add_argument(
+        "--covalent-threshold",
+        type=float,
+        default=5.0,
+        metavar="PERCENT",
+        help="flag covalent character when the cycle value exceeds the ionic models "
+        "by more than this (default 5 %%)",
+    )
+    a.add_argument(
+        "--model-spread",
+        type=float,
+        default=10.0,
+        metavar="PERCENT",
+        help="note when the ionic models disagree by more than this (default 10 %%)",
+    )
+    a.add_argument(
+        "--hydration-scale",
+        type=float,
+        default=None,
+        metavar="KJ",
+        help="ΔhydH(H+) of the absolute single-ion scale your hydration columns use "
+        "(e.g. -1103); without it, 'absolute' columns are assumed on -1103",
+    )
+    a.add_argument(
+        "--temperature",
+        type=float,
+        default=None,
+        metavar="K",
+        help="also give reaction enthalpies at this temperature (Kirchhoff's law)",
+    )
+    a.add_argument(
+        "--reference",
+        action="append",
+        default=[],
+        metavar="CSV",
+        help="reference values overriding the built-in ones "
+        "(element,quantity,index,value,unit,uncertainty,source)",
+    )
+    a.add_argument(
+        "--results-book",
+        action="store_true",
+        help="with -o, write a fresh results workbook instead of the annotated copy of the input",
+    )
     a.add_argument("--force", action="store_true", help="overwrite existing outputs")
     a.add_argument("-q", "--quiet", action="store_true", help="print only errors")
-    a.add_argument("-j", "--jobs", type=int, default=0, metavar="N",
-                   help="files processed in parallel (default: one process per core)")
+    a.add_argument(
+        "-j",
+        "--jobs",
+        type=int,
+        default=0,
+        metavar="N",
+        help="files processed in parallel (default: one process per core)",
+    )
     common(a)
 
     i = sub.add_parser("inspect", help="show which tables, columns and units are recognised")
@@ -96,8 +156,13 @@ def _expand(inputs: Sequence[str]) -> list[Path]:
     for item in inputs:
         path = Path(item)
         if path.is_dir():
-            out.extend(sorted(q for q in path.iterdir()
-                              if q.suffix.lower() in WORKBOOK_SUFFIXES and not q.name.startswith(".")))
+            out.extend(
+                sorted(
+                    q
+                    for q in path.iterdir()
+                    if q.suffix.lower() in WORKBOOK_SUFFIXES and not q.name.startswith(".")
+                )
+            )
         elif any(ch in item for ch in "*?["):
             out.extend(sorted(Path(g) for g in glob.glob(item)))
         else:
@@ -120,8 +185,10 @@ def _summary(run) -> str:  # type: ignore[no-untyped-def]
     counts = {"error": 0, "warning": 0, "note": 0}
     for f in [f for r in run.rows for f in r.flags] + list(run.file_flags):
         counts[f.severity.value] += 1
-    return (f"{run.input}: {len(rows)} compounds, {lattice} lattice enthalpies; "
-            f"{counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
+    return (
+        f"{run.input}: {len(rows)} compounds, {lattice} lattice enthalpies; "
+        f"{counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes"
+    )
 
 
 def _target(base: str | None, src: Path, many: bool, suffix: str) -> Path | None:
@@ -154,22 +221,41 @@ def _annotate(args: argparse.Namespace) -> int:
     for ref in args.reference:
         extra.extend(load_reference_file(ref))
     if args.temperature is not None and args.temperature <= 0:
-        raise UsageError("--temperature must be a positive number of kelvin",
-                         found=args.temperature)
-    settings = Settings(tolerance=args.tolerance, column_overrides=_overrides(args),
-                        reference_files=tuple(args.reference), extra_references=tuple(extra),
-                        covalent_threshold=args.covalent_threshold,
-                        model_spread=args.model_spread, hydration_scale=args.hydration_scale,
-                        temperature=args.temperature)
+        raise UsageError(
+            "--temperature must be a positive number of kelvin", found=args.temperature
+        )
+    settings = Settings(
+        tolerance=args.tolerance,
+        column_overrides=_overrides(args),
+        reference_files=tuple(args.reference),
+        extra_references=tuple(extra),
+        covalent_threshold=args.covalent_threshold,
+        model_spread=args.model_spread,
+        hydration_scale=args.hydration_scale,
+        temperature=args.temperature,
+    )
     many = len(paths) > 1
-    jobs = [(src, _target(args.output, src, many, _out_suffix(src, args)),
-             _target(args.json_path, src, many, ".report.json")) for src in paths]
+    jobs = [
+        (
+            src,
+            _target(args.output, src, many, _out_suffix(src, args)),
+            _target(args.json_path, src, many, ".report.json"),
+        )
+        for src in paths
+    ]
     workers = min(len(jobs), args.jobs or os.cpu_count() or 1)
     if workers > 1:
         # Files are independent: one process each, results reported in input order.
         with ProcessPoolExecutor(max_workers=workers) as pool:
-            outcomes = list(pool.map(_one_file, jobs, [settings] * len(jobs),
-                                     [args.force] * len(jobs), [args.results_book] * len(jobs)))
+            outcomes = list(
+                pool.map(
+                    _one_file,
+                    jobs,
+                    [settings] * len(jobs),
+                    [args.force] * len(jobs),
+                    [args.results_book] * len(jobs),
+                )
+            )
     else:
         outcomes = [_one_file(job, settings, args.force, args.results_book) for job in jobs]
     failed = 0
@@ -184,20 +270,27 @@ def _annotate(args: argparse.Namespace) -> int:
     return 1 if failed else 0
 
 
-def _one_file(job: tuple[Path, Path | None, Path | None], settings, force: bool,  # type: ignore[no-untyped-def]
-              results_book: bool) -> tuple[bool, str]:
+def _one_file(
+    job: tuple[Path, Path | None, Path | None],
+    settings,
+    force: bool,  # type: ignore[no-untyped-def]
+    results_book: bool,
+) -> tuple[bool, str]:
     """Annotate one file; (True, summary) or (False, the one-line error). Never raises."""
     from sheetcycle.api import annotate
 
     src, out, json_path = job
     try:
-        run = annotate(src, out, json_path=json_path, settings=settings, force=force,
-                       results_book=results_book)
+        run = annotate(
+            src, out, json_path=json_path, settings=settings, force=force, results_book=results_book
+        )
     except SheetcycleError as exc:
         return False, str(exc)
     except Exception as exc:  # a bug must not stop the other files or print a traceback
-        return False, (f"{src}: internal error ({type(exc).__name__}: {exc}); nothing was "
-                       "written for this file; please report it")
+        return False, (
+            f"{src}: internal error ({type(exc).__name__}: {exc}); nothing was "
+            "written for this file; please report it"
+        )
     return True, _summary(run)
 
 

@@ -30,7 +30,7 @@ __all__ = [
 FloatArray = npt.NDArray[np.float64]
 
 
-class Severity(str, Enum):
+class Severity(str, Enum):  # noqa: UP042 - str mixin keeps JSON and comparisons plain
     """How much a flag matters. The string values are what the JSON report carries."""
 
     ERROR = "error"  # the row's result is missing or wrong because of this

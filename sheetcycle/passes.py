@@ -38,5 +38,10 @@ def _reactions(ctx: WorkbookContext) -> list[RowResult]:
 
 
 WORKBOOK_PASSES.append(_reactions)
-def _theory(ctx: TableContext) -> None: __import__("sheetcycle.theory").theory.theory_pass(ctx)
+
+
+def _theory(ctx: TableContext) -> None:
+    __import__("sheetcycle.theory").theory.theory_pass(ctx)
+
+
 TABLE_PASSES.append(_theory)

@@ -20,7 +20,14 @@ import numpy as np
 from sheetcycle import __version__
 from sheetcycle.chem import IonAssignment, assign_ions, parse_formula
 from sheetcycle.data import ReferenceData
-from sheetcycle.engine.born_haber import IDX, TERM_LABELS, TERMS, CycleStatus, CycleTerms, close_cycles
+from sheetcycle.engine.born_haber import (
+    IDX,
+    TERM_LABELS,
+    TERMS,
+    CycleStatus,
+    CycleTerms,
+    close_cycles,
+)
 from sheetcycle.engine.conventions import (
     CellIssue,
     ColumnConvention,
@@ -59,7 +66,9 @@ class Settings:
     extra_references: tuple[tuple[str, str, int, RefValue], ...] = field(default=(), repr=False)
     covalent_threshold: float = 5.0  # percent: cycle value above the ionic models by more → flag
     model_spread: float = 10.0  # percent: ionic models disagreeing by more → note
-    hydration_scale: float | None = None  # ΔhydH(H+) of the user's single-ion scale; None = conventional
+    hydration_scale: float | None = (
+        None  # ΔhydH(H+) of the user's single-ion scale; None = conventional
+    )
     temperature: float | None = None  # K: report reaction enthalpies also at this temperature
     reconcile: bool = False  # workbook-wide least-squares reconciliation of shared terms
     reconcile_threshold: float = 3.0  # normalised residual above which an input is named
@@ -69,7 +78,9 @@ class Settings:
             "tolerance_kJ_per_mol": self.tolerance,
             "reference_tolerance_relative": self.reference_tolerance,
             "lattice_convention": "dissociation (MaXb(s) -> gaseous ions, positive)",
-            "electron_gain_convention": "thermochemical electron-gain enthalpy (negative = exothermic)",
+            "electron_gain_convention": (
+                "thermochemical electron-gain enthalpy (negative = exothermic)"
+            ),
             "column_overrides": [o.__dict__ for o in self.column_overrides],
             "reference_files": list(self.reference_files),
             "covalent_threshold_percent": self.covalent_threshold,
@@ -113,40 +124,68 @@ def element_overrides(table: Table, file_flags: list[Flag]) -> list[tuple[str, s
             conv = electron_gain_from_column(values, col.convention, col.index)
             _convention_flags(col, conv, table, file_flags)
             values = conv.values
-        elif col.quantity in ("ionization_energy", "atomization", "atomization_metal",
-                              "atomization_nonmetal"):
+        elif col.quantity in (
+            "ionization_energy",
+            "atomization",
+            "atomization_metal",
+            "atomization_nonmetal",
+        ):
             values, issues = positive_quantity(values)
             for i in np.nonzero(issues)[0]:
-                file_flags.append(Flag(
-                    "value-impossible", Severity.ERROR,
-                    f"{col.header} of {sym_col.texts[i]} is negative; an ionization or "
-                    "atomization enthalpy is always positive; the value was not used",
-                    table.sheet, a1(table.first_row - 1 + int(i), col.col)))
+                file_flags.append(
+                    Flag(
+                        "value-impossible",
+                        Severity.ERROR,
+                        f"{col.header} of {sym_col.texts[i]} is negative; an ionization or "
+                        "atomization enthalpy is always positive; the value was not used",
+                        table.sheet,
+                        a1(table.first_row - 1 + int(i), col.col),
+                    )
+                )
         unc = col.uncertainties if col.uncertainties is not None else np.full(len(values), np.nan)
         for i, sym in enumerate(sym_col.texts):
             if not sym or math.isnan(values[i]):
                 continue
             cell = a1(table.first_row - 1 + i, col.col)
-            out.append((sym, quantity, index,
-                        RefValue(float(values[i]), float(unc[i]), f"workbook {table.sheet}!{cell}")))
+            out.append(
+                (
+                    sym,
+                    quantity,
+                    index,
+                    RefValue(float(values[i]), float(unc[i]), f"workbook {table.sheet}!{cell}"),
+                )
+            )
     return out
 
 
-def _convention_flags(col: Column, conv: ColumnConvention, table: Table,
-                      file_flags: list[Flag]) -> None:
+def _convention_flags(
+    col: Column, conv: ColumnConvention, table: Table, file_flags: list[Flag]
+) -> None:
     """Say, at the header cell, how an electron-gain column's sign convention was decided."""
     cell = a1(table.header_row - 1, col.col)
     if conv.contradicts_header:
-        file_flags.append(Flag(
-            "convention-from-signs", Severity.WARNING,
-            f"column '{col.header}': the header suggests the {_conv_words(col.convention)} "
-            f"convention, but the signs of its values say {_conv_words(conv.convention)}; "
-            "read by the signs", table.sheet, cell))
+        file_flags.append(
+            Flag(
+                "convention-from-signs",
+                Severity.WARNING,
+                f"column '{col.header}': the header suggests the {_conv_words(col.convention)} "
+                f"convention, but the signs of its values say {_conv_words(conv.convention)}; "
+                "read by the signs",
+                table.sheet,
+                cell,
+            )
+        )
     elif conv.decided_by == "signs":
-        file_flags.append(Flag(
-            "convention-from-signs", Severity.NOTE,
-            f"column '{col.header}' read in the {_conv_words(conv.convention)} convention "
-            "(decided by the signs of its values)", table.sheet, cell))
+        file_flags.append(
+            Flag(
+                "convention-from-signs",
+                Severity.NOTE,
+                f"column '{col.header}' read in the {_conv_words(conv.convention)} convention "
+                "(decided by the signs of its values)",
+                table.sheet,
+                cell,
+            )
+        )
 
 
 # ----------------------------------------------------------------------------- row terms
@@ -181,12 +220,19 @@ class _Term:
 
     @classmethod
     def empty(cls, n: int) -> _Term:
-        return cls(np.full(n, np.nan), np.full(n, np.nan), [None] * n, [None] * n,
-                   np.zeros(n, dtype=bool))
+        return cls(
+            np.full(n, np.nan), np.full(n, np.nan), [None] * n, [None] * n, np.zeros(n, dtype=bool)
+        )
 
-    def fill_from_cells(self, col: Column, values: np.ndarray, table: Table,
-                        label: str, mask: np.ndarray | None = None,
-                        transform: str = "{}") -> None:
+    def fill_from_cells(
+        self,
+        col: Column,
+        values: np.ndarray,
+        table: Table,
+        label: str,
+        mask: np.ndarray | None = None,
+        transform: str = "{}",
+    ) -> None:
         """Take the row's own cell wherever it holds a value (and ``mask`` allows).
 
         ``transform`` turns the converted cell expression into the term, e.g. ``-({})`` for an
@@ -231,11 +277,15 @@ def _ref_term(
         texts.append(f"{label(key)}: {ref.source}")
         element, quantity, index = use_key(key)
         tokens.append(ref_token(element, quantity, index))
-        used.setdefault((element, quantity, index),
-                        ReferenceUse(element, quantity, index, ref.value, ref.uncertainty,
-                                     ref.unit, ref.source))
-    idx = np.fromiter((slot.get(k, -1) if k is not None else -1 for k in keys), dtype=np.intp,
-                      count=n)
+        used.setdefault(
+            (element, quantity, index),
+            ReferenceUse(
+                element, quantity, index, ref.value, ref.uncertainty, ref.unit, ref.source
+            ),
+        )
+    idx = np.fromiter(
+        (slot.get(k, -1) if k is not None else -1 for k in keys), dtype=np.intp, count=n
+    )
     have = idx >= 0
     vals = np.array([r.value for r in found] + [np.nan])
     sig = np.array([r.uncertainty for r in found] + [np.nan])
@@ -270,19 +320,29 @@ def _assign(
         if key not in cache:
             try:
                 f = parse_formula(text)
-                cache[key] = assign_ions(f, cation_charges=ref.cation_charges,
-                                         anion_charge_of=ref.anion_charge,
-                                         cation_charge=zc, anion_charge=za)
+                cache[key] = assign_ions(
+                    f,
+                    cation_charges=ref.cation_charges,
+                    anion_charge_of=ref.anion_charge,
+                    cation_charge=zc,
+                    anion_charge=za,
+                )
             except (FormulaSyntaxError, ChemistryError) as exc:
                 cache[key] = exc.problem if exc.problem else str(exc)
                 if isinstance(exc, FormulaSyntaxError):
                     cache[key] = "formula:" + str(cache[key])
         got = cache[key]
         if isinstance(got, str) and _not_a_solid(text, scol, i):
-            flags[i].append(Flag("not-ionic-solid", Severity.NOTE,
-                                 f"{text} is not a solid ({_state_of(text, scol, i)}): it has no "
-                                 "lattice and no Born-Haber cycle; its values serve reactions",
-                                 table.sheet, cell))
+            flags[i].append(
+                Flag(
+                    "not-ionic-solid",
+                    Severity.NOTE,
+                    f"{text} is not a solid ({_state_of(text, scol, i)}): it has no "
+                    "lattice and no Born-Haber cycle; its values serve reactions",
+                    table.sheet,
+                    cell,
+                )
+            )
             out.append(None)
             continue
         if isinstance(got, str):
@@ -318,7 +378,7 @@ def _int_or_none(col: Column | None, i: int) -> int | None:
         return None
     if col.values is not None:
         v = col.values[i]
-        return None if math.isnan(v) else int(round(v))
+        return None if math.isnan(v) else round(v)
     if col.texts is not None and col.texts[i]:
         t = col.texts[i].strip().replace("−", "-")
         sign = -1 if t.endswith("-") or t.startswith("-") else 1
@@ -331,8 +391,13 @@ def _int_or_none(col: Column | None, i: int) -> int | None:
 class _TableTrace:
     """The cycle of every row of a table, shared by the rows' lazy trace views."""
 
-    def __init__(self, coefficients: np.ndarray, exprs: dict[str, list[str | None]],
-                 completed: np.ndarray, solved: list[str | None]) -> None:
+    def __init__(
+        self,
+        coefficients: np.ndarray,
+        exprs: dict[str, list[str | None]],
+        completed: np.ndarray,
+        solved: list[str | None],
+    ) -> None:
         self.coefficients = coefficients
         self.exprs = exprs
         self.completed = completed
@@ -425,30 +490,52 @@ def close_table(
     def cell_of(col: Column, i: int) -> str:
         return a1(table.first_row - 1 + i, col.col)
 
-    def col_issue_flags(col: Column, issues: np.ndarray, code: str, message: Callable[[int], str],
-                        severity: Severity) -> None:
+    def col_issue_flags(
+        col: Column,
+        issues: np.ndarray,
+        code: str,
+        message: Callable[[int], str],
+        severity: Severity,
+    ) -> None:
         for i in np.nonzero(issues)[0]:
-            row_flags[int(i)].append(Flag(code, severity, message(int(i)), table.sheet,
-                                          cell_of(col, int(i))))
+            row_flags[int(i)].append(
+                Flag(code, severity, message(int(i)), table.sheet, cell_of(col, int(i)))
+            )
 
     terms: dict[str, _Term] = {}
     # -- atomization of the metal and the non-metal
     terms["atomization_metal"] = _ref_term(
-        n, cat, ref.atomization, lambda s: f"ΔatH({s})", used,
-        lambda s: (s, "atomization_enthalpy", 0))
+        n,
+        cat,
+        ref.atomization,
+        lambda s: f"ΔatH({s})",
+        used,
+        lambda s: (s, "atomization_enthalpy", 0),
+    )
     terms["atomization_nonmetal"] = _ref_term(
-        n, an, ref.atomization, lambda s: f"ΔatH({s})", used,
-        lambda s: (s, "atomization_enthalpy", 0))
+        n,
+        an,
+        ref.atomization,
+        lambda s: f"ΔatH({s})",
+        used,
+        lambda s: (s, "atomization_enthalpy", 0),
+    )
     ref_at_m = terms["atomization_metal"].values.copy()
     ref_at_x = terms["atomization_nonmetal"].values.copy()
     for qname in ("atomization_metal", "atomization_nonmetal"):
         col = table.column(qname)
         if col is not None and col.values is not None:
             vals, issues = positive_quantity(col.values)
-            col_issue_flags(col, issues, "value-impossible",
-                            lambda i, c=col: f"{c.header} is negative; an atomization enthalpy is "
-                                             "always positive; the value was not used",
-                            Severity.ERROR)
+            col_issue_flags(
+                col,
+                issues,
+                "value-impossible",
+                lambda i, c=col: (
+                    f"{c.header} is negative; an atomization enthalpy is "
+                    "always positive; the value was not used"
+                ),
+                Severity.ERROR,
+            )
             expected = ref_at_m if qname == "atomization_metal" else ref_at_x
             vals = _check_against_reference(col, vals, expected, table, row_flags, settings)
             terms[qname].fill_from_cells(col, vals, table, col.header)
@@ -457,8 +544,13 @@ def close_table(
         vals, _ = positive_quantity(bond.values)
         # ΔatH(X) = ½ D(X–X) per atom of X, for the diatomic elements (common practice, no source)
         terms["atomization_nonmetal"].fill_from_cells(
-            bond, vals / 2.0, table, f"½ {bond.header}",
-            mask=~terms["atomization_nonmetal"].from_cell, transform="({})/2")
+            bond,
+            vals / 2.0,
+            table,
+            f"½ {bond.header}",
+            mask=~terms["atomization_nonmetal"].from_cell,
+            transform="({})/2",
+        )
 
     # -- ionization energies: IE1..IEp, each from the row or the reference
     ie_total = np.zeros(n)
@@ -470,16 +562,27 @@ def close_table(
         need = p >= k
         if not need.any():
             continue
-        t = _ref_term(n, [s if need[i] else None for i, s in enumerate(cat)],
-                      lambda s, k=k: ref.ionization(s, k), lambda s, k=k: f"IE{k}({s})", used,
-                      lambda s, k=k: (s, "ionization_energy", k))
+        t = _ref_term(
+            n,
+            [s if need[i] else None for i, s in enumerate(cat)],
+            lambda s, k=k: ref.ionization(s, k),
+            lambda s, k=k: f"IE{k}({s})",
+            used,
+            lambda s, k=k: (s, "ionization_energy", k),
+        )
         col = table.column("ionization_energy", k)
         if col is not None and col.values is not None:
             vals, issues = positive_quantity(col.values)
-            col_issue_flags(col, issues, "value-impossible",
-                            lambda i, c=col: f"{c.header} is negative; an ionization energy is "
-                                             "always positive; the value was not used",
-                            Severity.ERROR)
+            col_issue_flags(
+                col,
+                issues,
+                "value-impossible",
+                lambda i, c=col: (
+                    f"{c.header} is negative; an ionization energy is "
+                    "always positive; the value was not used"
+                ),
+                Severity.ERROR,
+            )
             vals = _check_against_reference(col, vals, t.values, table, row_flags, settings)
             t.fill_from_cells(col, vals, table, col.header, mask=need)
         ie_missing |= need & np.isnan(t.values)
@@ -489,11 +592,16 @@ def close_table(
             ie_sources[int(i)].append(t.sources[int(i)] or "")
             ie_exprs[int(i)].append(t.exprs[int(i)] or "")
     ion_values = np.where(ie_missing | np.isnan(p), np.nan, ie_total)
-    ion = _Term(ion_values, np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
-                ["; ".join(s) if s else None for s in ie_sources],
-                ["+".join(e) if e and not np.isnan(ion_values[i]) else None
-                 for i, e in enumerate(ie_exprs)],
-                np.zeros(n, dtype=bool))
+    ion = _Term(
+        ion_values,
+        np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
+        ["; ".join(s) if s else None for s in ie_sources],
+        [
+            "+".join(e) if e and not np.isnan(ion_values[i]) else None
+            for i, e in enumerate(ie_exprs)
+        ],
+        np.zeros(n, dtype=bool),
+    )
     sum_col = table.column("ionization_energy", 0)
     if sum_col is not None and sum_col.values is not None:
         vals, _ = positive_quantity(sum_col.values)
@@ -502,11 +610,22 @@ def close_table(
     terms["ionization"] = ion
 
     # -- electron gains of the anion
-    eg1 = _ref_term(n, an, lambda s: ref.electron_gain(s, 1), lambda s: f"ΔegH1({s})", used,
-                    lambda s: (s, "electron_gain_enthalpy", 1))
-    egh = _ref_term(n, [s if q[i] >= 2 else None for i, s in enumerate(an)],
-                    lambda s: ref.electron_gain(s, 2), lambda s: f"ΔegH2({s})", used,
-                    lambda s: (s, "electron_gain_enthalpy", 2))
+    eg1 = _ref_term(
+        n,
+        an,
+        lambda s: ref.electron_gain(s, 1),
+        lambda s: f"ΔegH1({s})",
+        used,
+        lambda s: (s, "electron_gain_enthalpy", 1),
+    )
+    egh = _ref_term(
+        n,
+        [s if q[i] >= 2 else None for i, s in enumerate(an)],
+        lambda s: ref.electron_gain(s, 2),
+        lambda s: f"ΔegH2({s})",
+        used,
+        lambda s: (s, "electron_gain_enthalpy", 2),
+    )
     # A triply charged anion (N3−) also needs a third gain, which tables do not give.
     egh.values = np.where(q >= 3, np.nan, egh.values)
     for k, term in ((1, eg1), (2, egh)):
@@ -515,10 +634,17 @@ def close_table(
             continue
         conv = electron_gain_from_column(col.values, col.convention, k)
         _convention_flags(col, conv, table, file_flags)
-        col_issue_flags(col, conv.issues == CellIssue.MIXED_SIGN, "sign-mixed",
-                        lambda i, c=col, cv=conv: f"{c.header}: this value's sign differs from the "
-                        f"rest of the column ({_conv_words(cv.convention)} convention); check which "
-                        "convention it was copied in", Severity.WARNING)
+        col_issue_flags(
+            col,
+            conv.issues == CellIssue.MIXED_SIGN,
+            "sign-mixed",
+            lambda i, c=col, cv=conv: (
+                f"{c.header}: this value's sign differs from the "
+                f"rest of the column ({_conv_words(cv.convention)} convention); check which "
+                "convention it was copied in"
+            ),
+            Severity.WARNING,
+        )
         mask = q >= k if k == 2 else None
         vals = _check_against_reference(col, conv.values, term.values, table, row_flags, settings)
         # the same conversion as electron_gain_from_column, written as a formula
@@ -538,53 +664,101 @@ def close_table(
     if lcol is not None and lcol.values is not None:
         conv = lattice_from_column(lcol.values, lcol.convention)
         if conv.decided_by == "signs":
-            file_flags.append(Flag(
-                "convention-from-signs", Severity.NOTE,
-                f"column '{lcol.header}' read in the {conv.convention} convention (decided by "
-                "the signs of its values); results are given in the dissociation convention",
-                table.sheet, a1(table.header_row - 1, lcol.col)))
-        col_issue_flags(lcol, conv.issues == CellIssue.IMPOSSIBLE, "value-impossible",
-                        lambda i, c=lcol, cv=conv: f"{c.header}: a lattice enthalpy of this sign is "
-                        f"impossible in the {cv.convention} convention the header states; "
-                        "the value was not used", Severity.ERROR)
-        col_issue_flags(lcol, conv.issues == CellIssue.MIXED_SIGN, "sign-mixed",
-                        lambda i, c=lcol, cv=conv: f"{c.header}: this value's sign differs from the "
-                        f"rest of the column ({cv.convention} convention): formation and "
-                        "dissociation values seem mixed; its magnitude was used", Severity.WARNING)
+            file_flags.append(
+                Flag(
+                    "convention-from-signs",
+                    Severity.NOTE,
+                    f"column '{lcol.header}' read in the {conv.convention} convention (decided by "
+                    "the signs of its values); results are given in the dissociation convention",
+                    table.sheet,
+                    a1(table.header_row - 1, lcol.col),
+                )
+            )
+        col_issue_flags(
+            lcol,
+            conv.issues == CellIssue.IMPOSSIBLE,
+            "value-impossible",
+            lambda i, c=lcol, cv=conv: (
+                f"{c.header}: a lattice enthalpy of this sign is "
+                f"impossible in the {cv.convention} convention the header states; "
+                "the value was not used"
+            ),
+            Severity.ERROR,
+        )
+        col_issue_flags(
+            lcol,
+            conv.issues == CellIssue.MIXED_SIGN,
+            "sign-mixed",
+            lambda i, c=lcol, cv=conv: (
+                f"{c.header}: this value's sign differs from the "
+                f"rest of the column ({cv.convention} convention): formation and "
+                "dissociation values seem mixed; its magnitude was used"
+            ),
+            Severity.WARNING,
+        )
         lat.fill_from_cells(lcol, conv.values, table, lcol.header, transform="ABS({})")
         if lcol.quantity == "lattice_energy":
-            file_flags.append(Flag(
-                "energy-as-enthalpy", Severity.NOTE,
-                f"column '{lcol.header}' holds lattice energies U; they were compared with the "
-                "cycle's lattice enthalpy directly, which differ by a few RT",
-                table.sheet, a1(table.header_row - 1, lcol.col)))
+            file_flags.append(
+                Flag(
+                    "energy-as-enthalpy",
+                    Severity.NOTE,
+                    f"column '{lcol.header}' holds lattice energies U; they were compared with the "
+                    "cycle's lattice enthalpy directly, which differ by a few RT",
+                    table.sheet,
+                    a1(table.header_row - 1, lcol.col),
+                )
+            )
     terms["lattice_enthalpy"] = lat
 
     values = {name: terms[name].values for name in TERMS}
     sigmas = {name: terms[name].sigmas for name in TERMS}
-    full = CycleTerms.from_columns(n_cation=a, n_anion=b, anion_charge=q, values=values,
-                                   sigmas=sigmas)
+    full = CycleTerms.from_columns(
+        n_cation=a, n_anion=b, anion_charge=q, values=values, sigmas=sigmas
+    )
     without_lattice = CycleTerms.from_columns(
-        n_cation=a, n_anion=b, anion_charge=q,
-        values={**values, "lattice_enthalpy": np.full(n, np.nan)}, sigmas=sigmas)
+        n_cation=a,
+        n_anion=b,
+        anion_charge=q,
+        values={**values, "lattice_enthalpy": np.full(n, np.nan)},
+        sigmas=sigmas,
+    )
     sol = close_cycles(full, tolerance=settings.tolerance)
     cyc = close_cycles(without_lattice, tolerance=settings.tolerance)
     rows = _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an, row_flags)
     if contexts is not None:
         lat_ok = (cyc.status == CycleStatus.SOLVED) & (cyc.solved == IDX["lattice_enthalpy"])
-        contexts.append(TableContext(table, rows, ions, np.where(lat_ok, cyc.value, np.nan),
-                                     np.where(lat_ok, cyc.sigma, np.nan), ref, settings,
-                                     file_flags))
+        contexts.append(
+            TableContext(
+                table,
+                rows,
+                ions,
+                np.where(lat_ok, cyc.value, np.nan),
+                np.where(lat_ok, cyc.sigma, np.nan),
+                ref,
+                settings,
+                file_flags,
+            )
+        )
     return rows
 
 
 def _conv_words(conv: str | None) -> str:
-    return {"released": "energy-released (EA > 0)", "gain": "electron-gain enthalpy (ΔegH < 0)",
-            "formation": "formation", "dissociation": "dissociation"}.get(conv or "", str(conv))
+    return {
+        "released": "energy-released (EA > 0)",
+        "gain": "electron-gain enthalpy (ΔegH < 0)",
+        "formation": "formation",
+        "dissociation": "dissociation",
+    }.get(conv or "", str(conv))
 
 
-def _check_against_reference(col: Column, given: np.ndarray, expected: np.ndarray, table: Table,
-                             row_flags: list[list[Flag]], settings: Settings) -> np.ndarray:
+def _check_against_reference(
+    col: Column,
+    given: np.ndarray,
+    expected: np.ndarray,
+    table: Table,
+    row_flags: list[list[Flag]],
+    settings: Settings,
+) -> np.ndarray:
     """Flag user values that look like a unit slip, or stray far from the built-in value.
 
     Returns ``given`` with the unit slips removed (NaN), so that the reference value is used
@@ -595,42 +769,75 @@ def _check_against_reference(col: Column, given: np.ndarray, expected: np.ndarra
         rel = np.abs(given - expected) / np.abs(expected)
     for i in np.nonzero(slip >= 0)[0]:
         i = int(i)
-        name, _, words = RATIO_SLIPS[int(slip[i])]
-        row_flags[i].append(Flag(
-            "unit-slip", Severity.WARNING,
-            f"{col.header} = {given[i]:.4g} kJ/mol after conversion, against {expected[i]:.4g} "
-            f"kJ/mol in the reference data: {words}; the reference value was used instead",
-            table.sheet, a1(table.first_row - 1 + i, col.col)))
+        _, _, words = RATIO_SLIPS[int(slip[i])]
+        row_flags[i].append(
+            Flag(
+                "unit-slip",
+                Severity.WARNING,
+                f"{col.header} = {given[i]:.4g} kJ/mol after conversion, against {expected[i]:.4g} "
+                f"kJ/mol in the reference data: {words}; the reference value was used instead",
+                table.sheet,
+                a1(table.first_row - 1 + i, col.col),
+            )
+        )
     far = (slip < 0) & (rel > settings.reference_tolerance)
     for i in np.nonzero(far)[0]:
         i = int(i)
-        row_flags[i].append(Flag(
-            "differs-from-reference", Severity.NOTE,
-            f"{col.header} = {given[i]:.4g} kJ/mol differs from the reference value "
-            f"{expected[i]:.4g} kJ/mol by {100 * rel[i]:.0f} %; the row's own value was used",
-            table.sheet, a1(table.first_row - 1 + i, col.col)))
+        row_flags[i].append(
+            Flag(
+                "differs-from-reference",
+                Severity.NOTE,
+                f"{col.header} = {given[i]:.4g} kJ/mol differs from the reference value "
+                f"{expected[i]:.4g} kJ/mol by {100 * rel[i]:.0f} %; the row's own value was used",
+                table.sheet,
+                a1(table.first_row - 1 + i, col.col),
+            )
+        )
     return np.where(slip >= 0, np.nan, given)
 
 
-def _check_ie_sum(col: Column, given: np.ndarray, cat: Sequence[str | None], p: np.ndarray,
-                  ref: ReferenceData, table: Table, row_flags: list[list[Flag]]) -> None:
+def _check_ie_sum(
+    col: Column,
+    given: np.ndarray,
+    cat: Sequence[str | None],
+    p: np.ndarray,
+    ref: ReferenceData,
+    table: Table,
+    row_flags: list[list[Flag]],
+) -> None:
     """A sum of ionization energies that stops one short of the cation's charge."""
     for i, sym in enumerate(cat):
         if sym is None or math.isnan(given[i]) or math.isnan(p[i]) or p[i] < 2:
             continue
         short = ref.ionization_sum(sym, int(p[i]) - 1)
         if short is not None and abs(given[i] - short.value) <= 0.01 * short.value:
-            row_flags[i].append(Flag(
-                "ionization-short", Severity.ERROR,
-                f"{col.header} = {given[i]:.1f} kJ/mol equals IE1..IE{int(p[i]) - 1} of {sym}, "
-                f"but {sym}{int(p[i])}+ needs IE1..IE{int(p[i])}: IE{int(p[i])} seems left out",
-                table.sheet, a1(table.first_row - 1 + i, col.col)))
+            row_flags[i].append(
+                Flag(
+                    "ionization-short",
+                    Severity.ERROR,
+                    f"{col.header} = {given[i]:.1f} kJ/mol equals IE1..IE{int(p[i]) - 1} of {sym}, "
+                    f"but {sym}{int(p[i])}+ needs IE1..IE{int(p[i])}: IE{int(p[i])} seems left out",
+                    table.sheet,
+                    a1(table.first_row - 1 + i, col.col),
+                )
+            )
 
 
-def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: dict[str, _Term], sol: Any, cyc: Any,
-                 a: np.ndarray, b: np.ndarray, p: np.ndarray, q: np.ndarray,
-                 cat: Sequence[str | None], an: Sequence[str | None],
-                 row_flags: list[list[Flag]]) -> list[RowResult]:
+def _row_results(
+    table: Table,
+    ref: ReferenceData,
+    settings: Settings,
+    terms: dict[str, _Term],
+    sol: Any,
+    cyc: Any,
+    a: np.ndarray,
+    b: np.ndarray,
+    p: np.ndarray,
+    q: np.ndarray,
+    cat: Sequence[str | None],
+    an: Sequence[str | None],
+    row_flags: list[list[Flag]],
+) -> list[RowResult]:
     n = table.n_rows
     fcol = table.column("formula")
     assert fcol is not None and fcol.texts is not None
@@ -644,11 +851,19 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
     candidates = {
         "ie_last": np.where(p >= 2, a * _last_ie(ref, cat, p), np.nan),
         "eg_higher": np.where(q >= 2, b * v[:, IDX["electron_gain_higher"]], np.nan),
-        "metal_factor": np.where(a > 1, (a - 1) * (v[:, IDX["atomization_metal"]]
-                                                   + v[:, IDX["ionization"]]), np.nan),
-        "nonmetal_factor": np.where(b > 1, (b - 1) * (v[:, IDX["atomization_nonmetal"]]
-                                                      + v[:, IDX["electron_gain_1"]]
-                                                      + np.where(q >= 2, v[:, IDX["electron_gain_higher"]], 0)), np.nan),
+        "metal_factor": np.where(
+            a > 1, (a - 1) * (v[:, IDX["atomization_metal"]] + v[:, IDX["ionization"]]), np.nan
+        ),
+        "nonmetal_factor": np.where(
+            b > 1,
+            (b - 1)
+            * (
+                v[:, IDX["atomization_nonmetal"]]
+                + v[:, IDX["electron_gain_1"]]
+                + np.where(q >= 2, v[:, IDX["electron_gain_higher"]], 0)
+            ),
+            np.nan,
+        ),
         "formation_kcal": (4.184 - 1.0) * v[:, IDX["formation_enthalpy"]],
     }
     names, match = residual_slips(sol.residual, tol, candidates)
@@ -658,12 +873,17 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
     solved_k = sol.solved.tolist()
     lat_rows = ((cyc.status == CycleStatus.SOLVED) & (cyc.solved == li)).tolist()
     exceeds = sol.exceeds.tolist()
-    no_ions, is_solved, is_closed = (int(CycleStatus.NO_IONS), int(CycleStatus.SOLVED),
-                                     int(CycleStatus.CLOSED))
-    shared = _TableTrace(sol.coefficients, {name: terms[name].exprs for name in TERMS},
-                         sol.completed,
-                         [TERMS[k] if st == is_solved else None
-                          for st, k in zip(statuses, solved_k, strict=True)])
+    no_ions, is_solved, is_closed = (
+        int(CycleStatus.NO_IONS),
+        int(CycleStatus.SOLVED),
+        int(CycleStatus.CLOSED),
+    )
+    shared = _TableTrace(
+        sol.coefficients,
+        {name: terms[name].exprs for name in TERMS},
+        sol.completed,
+        [TERMS[k] if st == is_solved else None for st, k in zip(statuses, solved_k, strict=True)],
+    )
     notes_lat = _sigma_notes(terms, cyc, n)
     notes_res = _sigma_notes(terms, sol, n)
     results: list[RowResult] = []
@@ -682,71 +902,126 @@ def _row_results(table: Table, ref: ReferenceData, settings: Settings, terms: di
         sources_cycle = _sources(terms, i, exclude=("lattice_enthalpy",))
         if lat_rows[i]:
             rr.values["lattice_enthalpy"] = ComputedValue(
-                float(cyc.value[i]), float(cyc.sigma[i]), KJ,
+                float(cyc.value[i]),
+                float(cyc.sigma[i]),
+                KJ,
                 "Born-Haber cycle: ΔH_L = a·(ΔatH(M) + ΣIE) + b·(ΔatH(X) + ΣΔegH) − ΔfH; "
                 "dissociation convention" + notes_lat[i],
-                tuple(sources_cycle))
+                tuple(sources_cycle),
+            )
         if status == is_closed:
             rr.values["closure_residual"] = ComputedValue(
-                float(sol.residual[i]), float(sol.residual_sigma[i]), KJ,
-                "cycle lattice enthalpy minus the given lattice enthalpy"
-                + notes_res[i], tuple(_sources(terms, i)))
+                float(sol.residual[i]),
+                float(sol.residual_sigma[i]),
+                KJ,
+                "cycle lattice enthalpy minus the given lattice enthalpy" + notes_res[i],
+                tuple(_sources(terms, i)),
+            )
             if exceeds[i]:
                 cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
-                msg = (f"the cycle does not close: from the other terms the lattice enthalpy is "
-                       f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
-                       f"the residual {sol.residual[i]:+.1f} ± {sol.residual_sigma[i]:.1f} kJ/mol "
-                       f"is larger than max(2σ, {settings.tolerance:g} kJ/mol)")
-                hint = _residual_hint(names, int(match[i]), int(lat_slip[i]), cat[i], an[i],
-                                      int(p[i]), int(q[i]), a[i], b[i])
-                flags.append(Flag("cycle-open", Severity.WARNING, msg + (f". {hint}" if hint else ""),
-                                  table.sheet, cell))
+                msg = (
+                    f"the cycle does not close: from the other terms the lattice enthalpy is "
+                    f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
+                    f"the residual {sol.residual[i]:+.1f} ± {sol.residual_sigma[i]:.1f} kJ/mol "
+                    f"is larger than max(2σ, {settings.tolerance:g} kJ/mol)"
+                )
+                hint = _residual_hint(
+                    names,
+                    int(match[i]),
+                    int(lat_slip[i]),
+                    cat[i],
+                    an[i],
+                    int(p[i]),
+                    int(q[i]),
+                    a[i],
+                    b[i],
+                )
+                flags.append(
+                    Flag(
+                        "cycle-open",
+                        Severity.WARNING,
+                        msg + (f". {hint}" if hint else ""),
+                        table.sheet,
+                        cell,
+                    )
+                )
         elif status == is_solved:
             k = solved_k[i]
             name = TERMS[k]
-            out_name = {"formation_enthalpy": "formation_enthalpy",
-                        "electron_gain_1": "electron_gain_enthalpy",
-                        "electron_gain_higher": "electron_gain_enthalpy",
-                        "atomization_metal": "atomization_enthalpy",
-                        "atomization_nonmetal": "atomization_enthalpy",
-                        "ionization": "ionization_energy"}.get(name)
+            out_name = {
+                "formation_enthalpy": "formation_enthalpy",
+                "electron_gain_1": "electron_gain_enthalpy",
+                "electron_gain_higher": "electron_gain_enthalpy",
+                "atomization_metal": "atomization_enthalpy",
+                "atomization_nonmetal": "atomization_enthalpy",
+                "ionization": "ionization_energy",
+            }.get(name)
             if out_name is not None:
                 rr.values[out_name] = ComputedValue(
-                    float(sol.value[i]), float(sol.sigma[i]), KJ,
+                    float(sol.value[i]),
+                    float(sol.sigma[i]),
+                    KJ,
                     f"Born-Haber cycle solved for the {TERM_LABELS[name]}",
-                    tuple(_sources(terms, i, exclude=(name,))))
-                flags.append(Flag("term-derived", Severity.NOTE,
-                                  f"the {TERM_LABELS[name]} was not given and was derived from "
-                                  f"the cycle: {sol.value[i]:.1f} kJ/mol", table.sheet, fcell))
+                    tuple(_sources(terms, i, exclude=(name,))),
+                )
+                flags.append(
+                    Flag(
+                        "term-derived",
+                        Severity.NOTE,
+                        f"the {TERM_LABELS[name]} was not given and was derived from "
+                        f"the cycle: {sol.value[i]:.1f} kJ/mol",
+                        table.sheet,
+                        fcell,
+                    )
+                )
         else:  # underdetermined
             missing = [TERMS[k] for k in np.nonzero(sol.missing[i])[0]]
-            words = ", ".join(_missing_words(t, cat[i], an[i], int(p[i]), int(q[i])) for t in missing)
+            words = ", ".join(
+                _missing_words(t, cat[i], an[i], int(p[i]), int(q[i])) for t in missing
+            )
             cell = fcell
             if "formation_enthalpy" in missing and fhcol is not None:
                 cell = a1(table.first_row - 1 + i, fhcol.col)
-            flags.append(Flag("inputs-missing", Severity.ERROR,
-                              f"cannot close the cycle of {formula}: missing {words}; a cycle "
-                              "can be solved for one missing term only",
-                              table.sheet, cell))
+            flags.append(
+                Flag(
+                    "inputs-missing",
+                    Severity.ERROR,
+                    f"cannot close the cycle of {formula}: missing {words}; a cycle "
+                    "can be solved for one missing term only",
+                    table.sheet,
+                    cell,
+                )
+            )
     return results
 
 
 def _sigma_notes(terms: dict[str, _Term], sol: Any, n: int) -> list[str]:
     """Per row: which terms the uncertainty leaves out, when some have none ('' otherwise)."""
     names = [name for name in TERMS]
-    lacking = np.stack([
-        (sol.coefficients[:, IDX[name]] != 0) & ~np.isnan(terms[name].values)
-        & np.isnan(terms[name].sigmas)
-        & ((name != "lattice_enthalpy") | (sol.status == CycleStatus.CLOSED))
-        for name in names], axis=1)
+    lacking = np.stack(
+        [
+            (sol.coefficients[:, IDX[name]] != 0)
+            & ~np.isnan(terms[name].values)
+            & np.isnan(terms[name].sigmas)
+            & ((name != "lattice_enthalpy") | (sol.status == CycleStatus.CLOSED))
+            for name in names
+        ],
+        axis=1,
+    )
     cache: dict[bytes, str] = {}
     out: list[str] = []
     for row in lacking:
         key = row.tobytes()
         if key not in cache:
             missing = [TERM_LABELS[names[k]] for k in np.nonzero(row)[0]]
-            cache[key] = ("; the uncertainty counts only the terms that have one (none given "
-                          "for: " + ", ".join(missing) + ")") if missing else ""
+            cache[key] = (
+                (
+                    "; the uncertainty counts only the terms that have one (none given "
+                    "for: " + ", ".join(missing) + ")"
+                )
+                if missing
+                else ""
+            )
         out.append(cache[key])
     return out
 
@@ -762,8 +1037,17 @@ def _last_ie(ref: ReferenceData, cat: Sequence[str | None], p: np.ndarray) -> np
     return out
 
 
-def _residual_hint(names: tuple[str, ...], match: int, lat_slip: int, m: str | None,
-                   x: str | None, p: int, q: int, a: float, b: float) -> str:
+def _residual_hint(
+    names: tuple[str, ...],
+    match: int,
+    lat_slip: int,
+    m: str | None,
+    x: str | None,
+    p: int,
+    q: int,
+    a: float,
+    b: float,
+) -> str:
     if lat_slip >= 0:
         return "The given lattice enthalpy: " + RATIO_SLIPS[lat_slip][2]
     if match < 0:
@@ -771,15 +1055,15 @@ def _residual_hint(names: tuple[str, ...], match: int, lat_slip: int, m: str | N
     what = names[match]
     return {
         "ie_last": f"The residual matches IE{p} of {m}: was the last ionization energy "
-                   f"left out where the given value was derived?",
+        f"left out where the given value was derived?",
         "eg_higher": f"The residual matches the second electron gain of {x}: was it left out "
-                     "where the given value was derived?",
+        "where the given value was derived?",
         "metal_factor": f"The residual matches {a - 1:g} × (ΔatH + ΣIE) of {m}: was the "
-                        f"stoichiometric factor {a:g} for {m} missed?",
+        f"stoichiometric factor {a:g} for {m} missed?",
         "nonmetal_factor": f"The residual matches {b - 1:g} × (ΔatH + ΣΔegH) of {x}: was the "
-                           f"stoichiometric factor {b:g} for {x} missed?",
+        f"stoichiometric factor {b:g} for {x} missed?",
         "formation_kcal": "The residual matches an enthalpy of formation in kcal/mol read as "
-                          "kJ/mol: check the unit of the formation column",
+        "kJ/mol: check the unit of the formation column",
     }[what]
 
 
@@ -787,8 +1071,10 @@ def _missing_words(term: str, m: str | None, x: str | None, p: int, q: int) -> s
     if term == "ionization":
         return f"ionization energies IE1..IE{p} of {m}"
     if term == "electron_gain_higher":
-        return (f"electron gains 2..{q} of {x} (no tabulated value; give them in a column "
-                "or on an elements sheet)")
+        return (
+            f"electron gains 2..{q} of {x} (no tabulated value; give them in a column "
+            "or on an elements sheet)"
+        )
     if term in ("atomization_metal",):
         return f"the atomization enthalpy of {m}"
     if term == "atomization_nonmetal":
@@ -847,17 +1133,32 @@ def run_tables(
         for table_pass in TABLE_PASSES:
             table_pass(ctx)
     for workbook_pass in WORKBOOK_PASSES:
-        rows.extend(workbook_pass(WorkbookContext(tables=list(tables), contexts=contexts,
-                                                  ref=ref, settings=settings,
-                                                  file_flags=file_flags)))
+        rows.extend(
+            workbook_pass(
+                WorkbookContext(
+                    tables=list(tables),
+                    contexts=contexts,
+                    ref=ref,
+                    settings=settings,
+                    file_flags=file_flags,
+                )
+            )
+        )
     file_flags = _route_to_rows(file_flags, rows)
     exprs: set[str] = set()
-    for shared in {id(r.trace._t): r.trace._t for r in rows
-                   if isinstance(r.trace, _TraceView)}.values():
+    for shared in {
+        id(r.trace._t): r.trace._t for r in rows if isinstance(r.trace, _TraceView)
+    }.values():
         for row_exprs in shared.exprs.values():
             exprs.update(e for e in row_exprs if e)
     pointed = {tok for e in exprs for tok in _TOKEN.findall(e)}
     references = [u for key, u in used.items() if ref_token(*key) in pointed]
-    return RunResult(version=__version__, input=str(path), tables=list(tables), rows=rows,
-                     references=sorted(references, key=lambda r: (r.element, r.quantity, r.index)),
-                     settings=settings.as_dict(), file_flags=file_flags)
+    return RunResult(
+        version=__version__,
+        input=str(path),
+        tables=list(tables),
+        rows=rows,
+        references=sorted(references, key=lambda r: (r.element, r.quantity, r.index)),
+        settings=settings.as_dict(),
+        file_flags=file_flags,
+    )

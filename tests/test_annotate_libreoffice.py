@@ -21,8 +21,8 @@ from sheetcycle.io.tables import a1
 from sheetcycle.pipeline import Settings, run_tables
 
 sys.path.insert(0, str(Path(__file__).parent))
-from lo import convert_to_csv, sheets_csv  # noqa: E402
-from test_workbook_e2e import lab_book  # noqa: E402
+from lo import convert_to_csv, sheets_csv
+from test_workbook_e2e import lab_book
 
 DEMO = Path(__file__).parents[1] / "workbooks" / "demo_salts.xlsx"
 
@@ -35,7 +35,7 @@ def _num(text: str) -> float:
 
 
 def _cell(grid: list[list[str]], ref: str) -> str:
-    from openpyxl.utils.cell import coordinate_from_string, column_index_from_string
+    from openpyxl.utils.cell import column_index_from_string, coordinate_from_string
 
     letters, row = coordinate_from_string(ref)
     r, c = row - 1, column_index_from_string(letters) - 1
@@ -63,8 +63,8 @@ def converted(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-unty
 @pytest.mark.parametrize("name", ["demo", "lab"])
 def test_libreoffice_recomputes_every_formula_to_the_cached_value(converted, name: str) -> None:
     csv_dir, cases = converted
-    src, out, plan, sheets = cases[name]
-    grids = sheets_csv(csv_dir, out.stem, sheets + [METHOD_SHEET, FLAGS_SHEET])
+    _src, out, plan, sheets = cases[name]
+    grids = sheets_csv(csv_dir, out.stem, [*sheets, METHOD_SHEET, FLAGS_SHEET])
     assert plan.formulas, "the plan emitted no formulas"
     for sheet, cell, formula, expected in plan.formulas:
         got = _num(_cell(grids[sheet], cell))

@@ -22,16 +22,29 @@ from sheetcycle.engine.diagnose import RATIO_SLIPS, ratio_slips, residual_slips
 # Born-Haber tables use: ΔfH(NaCl,s) −411.2, ΔatH(Na) 107.3, IE1(Na) 495.8, ΔatH(Cl) 121.3,
 # EA(Cl) 348.6. The lattice enthalpy these give, 787 kJ/mol, is the handbook cycle value
 # (CRC Handbook of Chemistry and Physics, "Lattice energies" table, from memory).
-NACL = dict(formation_enthalpy=-411.2, atomization_metal=107.3, ionization=495.8,
-            atomization_nonmetal=121.3, electron_gain_1=-348.6)
+NACL = dict(
+    formation_enthalpy=-411.2,
+    atomization_metal=107.3,
+    ionization=495.8,
+    atomization_nonmetal=121.3,
+    electron_gain_1=-348.6,
+)
 
 
-def one_row(values: dict[str, float], sigmas: dict[str, float] | None = None,
-            a: float = 1, b: float = 1, q: float = 1) -> CycleTerms:
+def one_row(
+    values: dict[str, float],
+    sigmas: dict[str, float] | None = None,
+    a: float = 1,
+    b: float = 1,
+    q: float = 1,
+) -> CycleTerms:
     return CycleTerms.from_columns(
-        n_cation=[a], n_anion=[b], anion_charge=[q],
+        n_cation=[a],
+        n_anion=[b],
+        anion_charge=[q],
         values={k: [v] for k, v in values.items()},
-        sigmas={k: [v] for k, v in (sigmas or {}).items()})
+        sigmas={k: [v] for k, v in (sigmas or {}).items()},
+    )
 
 
 def test_nacl_lattice_enthalpy_matches_handbook_cycle_value() -> None:
@@ -45,15 +58,25 @@ def test_mgcl2_uses_two_chlorines_and_two_ionizations() -> None:
     # MgCl2, from memory (NIST-JANAF key values): ΔfH −641.3, ΔatH(Mg) 147.1,
     # IE1+IE2(Mg) 737.7+1450.7, ΔatH(Cl) 121.3, EA(Cl) 348.6; handbook cycle value 2526
     # (CRC "Lattice energies", from memory).
-    vals = dict(formation_enthalpy=-641.3, atomization_metal=147.1, ionization=737.7 + 1450.7,
-                atomization_nonmetal=121.3, electron_gain_1=-348.6)
+    vals = dict(
+        formation_enthalpy=-641.3,
+        atomization_metal=147.1,
+        ionization=737.7 + 1450.7,
+        atomization_nonmetal=121.3,
+        electron_gain_1=-348.6,
+    )
     sol = close_cycles(one_row(vals, b=2))
     assert sol.value[0] == pytest.approx(2526, abs=5)
 
 
 def test_oxide_needs_second_electron_gain() -> None:
-    vals = dict(formation_enthalpy=-601.6, atomization_metal=147.1, ionization=2188.4,
-                atomization_nonmetal=249.2, electron_gain_1=-141.0)
+    vals = dict(
+        formation_enthalpy=-601.6,
+        atomization_metal=147.1,
+        ionization=2188.4,
+        atomization_nonmetal=249.2,
+        electron_gain_1=-141.0,
+    )
     sol = close_cycles(one_row(vals, q=2))
     assert sol.status[0] == CycleStatus.UNDERDETERMINED
     assert list(np.array(TERMS)[sol.missing[0]]) == ["lattice_enthalpy", "electron_gain_higher"]
@@ -83,10 +106,17 @@ def test_reference_value_used_n_times_contributes_n_sigma() -> None:
     # Al2O3: ΔatH(Al) enters twice. Its σ of 4 kJ/mol must add 2·4 = 8 (linear), while the
     # two independent terms add in quadrature (common practice, no source: GUM rules for a
     # fully correlated input used twice).
-    vals = dict(formation_enthalpy=-1675.7, atomization_metal=330.0, ionization=5139.1,
-                atomization_nonmetal=249.2, electron_gain_1=-141.0, electron_gain_higher=798.0)
-    sol = close_cycles(one_row(vals, {"atomization_metal": 4.0, "formation_enthalpy": 1.3},
-                               a=2, b=3, q=2))
+    vals = dict(
+        formation_enthalpy=-1675.7,
+        atomization_metal=330.0,
+        ionization=5139.1,
+        atomization_nonmetal=249.2,
+        electron_gain_1=-141.0,
+        electron_gain_higher=798.0,
+    )
+    sol = close_cycles(
+        one_row(vals, {"atomization_metal": 4.0, "formation_enthalpy": 1.3}, a=2, b=3, q=2)
+    )
     assert sol.sigma[0] == pytest.approx(math.hypot(2 * 4.0, 1.3))
     assert not sol.sigma_complete[0]  # other terms have no σ: the budget says so
 
@@ -100,9 +130,13 @@ finite = st.floats(min_value=-5000, max_value=5000, allow_nan=False)
 
 
 @settings(max_examples=200, deadline=None)
-@given(values=st.lists(finite, min_size=len(TERMS), max_size=len(TERMS)),
-       a=st.integers(1, 3), b=st.integers(1, 3), q=st.integers(1, 2),
-       drop=st.integers(0, len(TERMS) - 1))
+@given(
+    values=st.lists(finite, min_size=len(TERMS), max_size=len(TERMS)),
+    a=st.integers(1, 3),
+    b=st.integers(1, 3),
+    q=st.integers(1, 2),
+    drop=st.integers(0, len(TERMS) - 1),
+)
 def test_solving_any_term_then_closing_gives_zero_residual(values, a, b, q, drop) -> None:
     if TERMS[drop] == "electron_gain_higher" and q < 2:
         drop = 0
@@ -122,7 +156,8 @@ def test_order_of_terms_does_not_matter(perm) -> None:
     base = dict(NACL, lattice_enthalpy=787.0)
     shuffled = {names[i]: base[names[i]] for i in perm}
     assert close_cycles(one_row(shuffled)).residual[0] == pytest.approx(
-        close_cycles(one_row(base)).residual[0])
+        close_cycles(one_row(base)).residual[0]
+    )
 
 
 def test_lattice_convention_from_signs_and_header() -> None:
@@ -152,13 +187,15 @@ def test_negative_ionization_energy_is_impossible() -> None:
 
 def test_ratio_slips_recognise_ev_and_kcal() -> None:
     # 1 eV = 96.485 kJ/mol (CODATA 2018); 1 kcal = 4.184 kJ (thermochemical calorie)
-    idx = ratio_slips(np.array([5.139, 495.8 / 4.184, 495.8, 242.6]),
-                      np.array([495.8, 495.8, 495.8, 121.3]))
+    idx = ratio_slips(
+        np.array([5.139, 495.8 / 4.184, 495.8, 242.6]), np.array([495.8, 495.8, 495.8, 121.3])
+    )
     names = [RATIO_SLIPS[i][0] if i >= 0 else None for i in idx]
     assert names == ["eV-as-kJ", "kcal-as-kJ", None, "full-bond"]
 
 
 def test_residual_slips_name_the_left_out_term() -> None:
-    names, match = residual_slips(np.array([1450.7, 3.0, 500.0]), 10.0,
-                                  {"ie_last": np.array([1450.7, 1450.7, 1450.7])})
+    _names, match = residual_slips(
+        np.array([1450.7, 3.0, 500.0]), 10.0, {"ie_last": np.array([1450.7, 1450.7, 1450.7])}
+    )
     assert list(match) == [0, -1, -1]

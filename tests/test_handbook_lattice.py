@@ -21,7 +21,8 @@ import pytest
 
 from sheetcycle.api import solve_cycles
 
-# formula: (ΔfH° kJ/mol [NBS 1982, from memory], handbook lattice enthalpy kJ/mol [CRC, from memory])
+# formula: (ΔfH° kJ/mol [NBS 1982, from memory],
+#           handbook lattice enthalpy kJ/mol [CRC, from memory])
 HALIDES = {
     "LiF": (-616.0, 1036),
     "LiCl": (-408.6, 853),

@@ -23,8 +23,11 @@ EXPECTED = {"NaCl": 786, "KBr": 682}
 
 
 def lattice(run) -> dict[str, float]:  # type: ignore[no-untyped-def]
-    return {r.formula: r.values["lattice_enthalpy"].value for r in run.rows
-            if "lattice_enthalpy" in r.values}
+    return {
+        r.formula: r.values["lattice_enthalpy"].value
+        for r in run.rows
+        if "lattice_enthalpy" in r.values
+    }
 
 
 def check(run) -> None:  # type: ignore[no-untyped-def]
@@ -49,6 +52,7 @@ def test_csv_with_bom_and_commas(tmp_path: Path) -> None:
 
 def test_xls_values(tmp_path: Path) -> None:
     import xlwt  # test dependency: writes the legacy .xls format
+
     wb = xlwt.Workbook()
     ws = wb.add_sheet("Salts")
     for r, row in enumerate(ROWS):
@@ -108,8 +112,11 @@ def test_elements_sheet_overrides_builtin_and_says_so(tmp_path: Path) -> None:
 
 def test_reference_file_overrides_second_electron_gain(tmp_path: Path) -> None:
     ref = tmp_path / "ours.csv"
-    ref.write_text("element,quantity,index,value,unit,uncertainty,source\n"
-                   "O,electron_gain_enthalpy,2,844,kJ/mol,,our preferred value\n", encoding="utf-8")
+    ref.write_text(
+        "element,quantity,index,value,unit,uncertainty,source\n"
+        "O,electron_gain_enthalpy,2,844,kJ/mol,,our preferred value\n",
+        encoding="utf-8",
+    )
     values = load_reference_file(ref)
     assert values[0][0:3] == ("O", "electron_gain_enthalpy", 2)
     path = tmp_path / "mgo.xlsx"
@@ -129,16 +136,23 @@ def test_reference_file_overrides_second_electron_gain(tmp_path: Path) -> None:
 
 def test_reference_file_errors_name_the_line(tmp_path: Path) -> None:
     ref = tmp_path / "bad.csv"
-    ref.write_text("element,quantity,index,value,unit,uncertainty,source\n"
-                   "O,electron_gain_enthalpy,2,844,J/K,,x\n", encoding="utf-8")
+    ref.write_text(
+        "element,quantity,index,value,unit,uncertainty,source\n"
+        "O,electron_gain_enthalpy,2,844,J/K,,x\n",
+        encoding="utf-8",
+    )
     with pytest.raises(ReadError, match="line 2"):
         load_reference_file(ref)
 
 
 def test_mapping_file(tmp_path: Path) -> None:
     mapping = tmp_path / "map.json"
-    mapping.write_text(json.dumps({"columns": [
-        {"column": "Heat", "quantity": "formation_enthalpy", "unit": "kcal/mol"}]}), encoding="utf-8")
+    mapping.write_text(
+        json.dumps(
+            {"columns": [{"column": "Heat", "quantity": "formation_enthalpy", "unit": "kcal/mol"}]}
+        ),
+        encoding="utf-8",
+    )
     overrides = load_column_mapping(mapping)
     path = tmp_path / "m.xlsx"
     wb = openpyxl.Workbook()
@@ -147,8 +161,9 @@ def test_mapping_file(tmp_path: Path) -> None:
     wb.save(path)
     report = inspect(path, column_overrides=overrides)
     assert "formation_enthalpy, unit kcal/mol" in report.as_text()
-    assert lattice(annotate(path, settings=Settings(column_overrides=tuple(overrides))))["NaCl"] == \
-        pytest.approx(787, abs=3)
+    assert lattice(annotate(path, settings=Settings(column_overrides=tuple(overrides))))[
+        "NaCl"
+    ] == pytest.approx(787, abs=3)
     bad = tmp_path / "bad.json"
     bad.write_text('{"columns": [{"colum": "B"}]}', encoding="utf-8")
     with pytest.raises(ReadError, match="entry 1"):

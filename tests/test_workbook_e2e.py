@@ -39,13 +39,13 @@ def lab_book(path: Path) -> Path:
     ws.append([])
     ws.append(["Compound", "ΔfH° / kJ mol⁻¹", "u(ΔfH)", "ΔLH lit. (kJ/mol)", "EA1 [eV]", "Remarks"])
     rows = [
-        ("NaCl", -411.2, 0.1, 787, 3.6127, "ok"),             # row 5
-        ("KCl", -436.5, 0.2, None, None, ""),                 # row 6: lattice derived
+        ("NaCl", -411.2, 0.1, 787, 3.6127, "ok"),  # row 5
+        ("KCl", -436.5, 0.2, None, None, ""),  # row 6: lattice derived
         ("MgCl2", -641.3, 0.6, 2326, None, "lit. value off"),  # row 7: cycle open by 200
         ("CaF2", "−1228.0 ± 1.5", None, None, None, "Unicode minus text"),  # row 8
         ("Fe3O4", -1118.4, None, None, None, "mixed valence"),  # row 9
-        ("SrO", None, None, None, None, "blank formation"),     # row 10
-        ("FeCl3", -399.5, None, None, None, ""),                # row 11
+        ("SrO", None, None, None, None, "blank formation"),  # row 10
+        ("FeCl3", -399.5, None, None, None, ""),  # row 11
     ]
     for r in rows:
         ws.append(list(r))
@@ -78,7 +78,9 @@ def test_annotate_reads_lab_book_and_reports(tmp_path: Path) -> None:
     nacl = rows[5]
     assert nacl["formula"] == "NaCl"
     lat = nacl["values"]["lattice_enthalpy"]
-    assert lat["unit"] == "kJ/mol" and lat["value"] == pytest.approx(786, rel=0.01)  # CRC, from memory
+    assert lat["unit"] == "kJ/mol" and lat["value"] == pytest.approx(
+        786, rel=0.01
+    )  # CRC, from memory
     # the row's own EA (3.6127 eV, energy released) was used, converted with 96.485 kJ/mol/eV
     assert any("Halides!E5" in s for s in lat["sources"])
     assert "closure_residual" in nacl["values"]
@@ -119,7 +121,9 @@ def test_annotate_reads_lab_book_and_reports(tmp_path: Path) -> None:
     wb.close()
 
 
-def test_cached_zero_from_a_non_calculating_writer_is_not_a_formation_enthalpy(tmp_path: Path) -> None:
+def test_cached_zero_from_a_non_calculating_writer_is_not_a_formation_enthalpy(
+    tmp_path: Path,
+) -> None:
     # regression: xlsxwriter caches <v>0</v> for every formula; a 0 kJ/mol formation
     # enthalpy would give NaCl a lattice enthalpy near 376 kJ/mol instead of 787.
     path = tmp_path / "scripted.xlsx"
@@ -173,8 +177,19 @@ def test_column_override_from_the_command_line(tmp_path: Path) -> None:
     ws.append(["NaCl", -98.28, None])
     wb.save(path)
     rep = tmp_path / "r.json"
-    assert run_cli("annotate", str(path), "--json", str(rep),
-                   "--column", "B=formation_enthalpy:kcal/mol", "--column", "C=ignore") == 0
+    assert (
+        run_cli(
+            "annotate",
+            str(path),
+            "--json",
+            str(rep),
+            "--column",
+            "B=formation_enthalpy:kcal/mol",
+            "--column",
+            "C=ignore",
+        )
+        == 0
+    )
     (row,) = json.loads(rep.read_text(encoding="utf-8"))["rows"]
     assert row["values"]["lattice_enthalpy"]["value"] == pytest.approx(787, abs=3)
 
@@ -201,7 +216,9 @@ def test_existing_output_is_kept_without_force(tmp_path: Path) -> None:
     assert json.loads(rep.read_text(encoding="utf-8"))["rows"]
 
 
-def test_inspect_prints_what_was_recognised(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_inspect_prints_what_was_recognised(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     src = lab_book(tmp_path / "lab.xlsx")
     assert run_cli("inspect", str(src)) == 0
     out = capsys.readouterr().out
@@ -212,13 +229,18 @@ def test_inspect_prints_what_was_recognised(tmp_path: Path, capsys: pytest.Captu
 
 def test_python_module_entry_point(tmp_path: Path) -> None:
     src = lab_book(tmp_path / "lab.xlsx")
-    proc = subprocess.run([sys.executable, "-m", "sheetcycle", "inspect", str(src)],
-                          capture_output=True, text=True, check=False)
+    proc = subprocess.run(
+        [sys.executable, "-m", "sheetcycle", "inspect", str(src)],
+        capture_output=True,
+        text=True,
+        check=False,
+    )
     assert proc.returncode == 0 and "formation_enthalpy" in proc.stdout
 
 
-def test_batch_of_files_in_parallel_with_one_bad(tmp_path: Path,
-                                                 capsys: pytest.CaptureFixture[str]) -> None:
+def test_batch_of_files_in_parallel_with_one_bad(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     folder = tmp_path / "in"
     folder.mkdir()
     lab_book(folder / "a.xlsx")

@@ -58,8 +58,13 @@ SALTS: list[tuple[str, str, object, object, object, str]] = [
 
 def build(path: Path = OUT) -> Path:
     wb = xlsxwriter.Workbook(str(path), {"strings_to_numbers": False})
-    wb.set_properties({"title": "Larkspur Kiln Works salt screening (invented demo data)",
-                       "author": "sheetcycle demo", "created": dt.datetime(2026, 1, 1)})
+    wb.set_properties(
+        {
+            "title": "Larkspur Kiln Works salt screening (invented demo data)",
+            "author": "sheetcycle demo",
+            "created": dt.datetime(2026, 1, 1),
+        }
+    )
     bold = wb.add_format({"bold": True})
     title = wb.add_format({"bold": True, "font_size": 14})
     head = wb.add_format({"bold": True, "bg_color": "#DDE4EE", "border": 1, "text_wrap": True})
@@ -71,10 +76,18 @@ def build(path: Path = OUT) -> Path:
         about.write_string(r, 0, line, title if r == 0 else None)
 
     ws = wb.add_worksheet("Salts")
-    ws.write_string(0, 0, "Salt screening — formation and lattice data (invented demo values)", title)
+    ws.write_string(
+        0, 0, "Salt screening — formation and lattice data (invented demo values)", title
+    )
     ws.write_string(1, 0, "Compiled by the (fictional) analytical group; values at 298.15 K")
-    headers = ["Compound", "State", "ΔfH° / kJ mol⁻¹", "±", "Lattice enthalpy (lit.) / kJ mol⁻¹",
-               "Notes"]
+    headers = [
+        "Compound",
+        "State",
+        "ΔfH° / kJ mol⁻¹",
+        "±",
+        "Lattice enthalpy (lit.) / kJ mol⁻¹",
+        "Notes",
+    ]
     for c, h in enumerate(headers):
         ws.write_string(3, c, h, head)
     for r, (f, state, dfh, unc, lat, note) in enumerate(SALTS, start=4):
@@ -100,9 +113,13 @@ def build(path: Path = OUT) -> Path:
     old.write_string(0, 0, "Values from a 1970s lab report (invented), in kcal/mol", bold)
     for c, h in enumerate(["Formula", "dHf (kcal/mol)", "IE1 [eV]", "Comment"]):
         old.write_string(2, c, h, head)
-    older = [("NaF", -137.1, 5.139, ""), ("KI", -78.4, 4.341, ""),
-             ("RbCl", -104.1, 4.177, ""), ("LiCl", -97.7, 5.392, ""),
-             ("NaBr", -86.3, 496.0, "IE typed in kJ/mol by mistake")]
+    older = [
+        ("NaF", -137.1, 5.139, ""),
+        ("KI", -78.4, 4.341, ""),
+        ("RbCl", -104.1, 4.177, ""),
+        ("LiCl", -97.7, 5.392, ""),
+        ("NaBr", -86.3, 496.0, "IE typed in kJ/mol by mistake"),
+    ]
     for r, (f, h, ie, note) in enumerate(older, start=3):
         old.write_string(r, 0, f)
         old.write_number(r, 1, h)
@@ -112,13 +129,20 @@ def build(path: Path = OUT) -> Path:
     old.set_column(0, 3, 18)
 
     el = wb.add_worksheet("Elements")
-    el.write_string(0, 0, "Element values typed by the lab (invented; override the built-in ones)", bold)
+    el.write_string(
+        0, 0, "Element values typed by the lab (invented; override the built-in ones)", bold
+    )
     for c, h in enumerate(["Element", "EA1 (kJ/mol)", "Source"]):
         el.write_string(2, c, h, head)
     # typed as electron-gain enthalpies (negative) under an 'EA' header: sheetcycle reads
     # the convention from the signs and says so
-    for r, (sym, ea, src) in enumerate([("Cl", -349.0, "lab handbook p. 12 (fictional)"),
-                                         ("Br", -324.6, "lab handbook p. 12 (fictional)")], start=3):
+    for r, (sym, ea, src) in enumerate(
+        [
+            ("Cl", -349.0, "lab handbook p. 12 (fictional)"),
+            ("Br", -324.6, "lab handbook p. 12 (fictional)"),
+        ],
+        start=3,
+    ):
         el.write_string(r, 0, sym)
         el.write_number(r, 1, ea)
         el.write_string(r, 2, src)

@@ -144,7 +144,9 @@ class CycleSolution:
     exceeds: npt.NDArray[np.bool_]  # CLOSED rows whose |residual| > max(2σ, tolerance)
 
 
-def cycle_coefficients(n_cation: FloatArray, n_anion: FloatArray, anion_charge: FloatArray) -> FloatArray:
+def cycle_coefficients(
+    n_cation: FloatArray, n_anion: FloatArray, anion_charge: FloatArray
+) -> FloatArray:
     """The (N, K) coefficients c_k of the cycle equation Σ c_k T_k = 0."""
     n = n_cation.shape[0]
     c = np.empty((n, K))
@@ -169,7 +171,9 @@ def close_cycles(terms: CycleTerms, *, tolerance: float = 10.0) -> CycleSolution
     a, b, q = terms.n_cation, terms.n_anion, terms.anion_charge
     n = a.shape[0]
     ions_ok = np.isfinite(a) & np.isfinite(b) & np.isfinite(q)
-    c = cycle_coefficients(np.where(ions_ok, a, 0.0), np.where(ions_ok, b, 0.0), np.where(ions_ok, q, 0.0))
+    c = cycle_coefficients(
+        np.where(ions_ok, a, 0.0), np.where(ions_ok, b, 0.0), np.where(ions_ok, q, 0.0)
+    )
     v, s = terms.values, terms.sigmas
     needed = c != 0.0
     given = ~np.isnan(v)

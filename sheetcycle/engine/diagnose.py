@@ -33,8 +33,12 @@ RATIO_SLIPS: tuple[tuple[str, float, str], ...] = (
     ("kJ-as-eV", EV_KJ_PER_MOL, "the values look like kJ/mol entered as eV"),
     ("kcal-as-kJ", 1.0 / KCAL_KJ, "the values look like kcal/mol entered as kJ/mol"),
     ("kJ-as-kcal", KCAL_KJ, "the values look like kJ/mol entered as kcal/mol"),
-    ("full-bond", 2.0, "the value looks like the whole bond dissociation enthalpy, "
-     "where the atomization enthalpy is half of it"),
+    (
+        "full-bond",
+        2.0,
+        "the value looks like the whole bond dissociation enthalpy, "
+        "where the atomization enthalpy is half of it",
+    ),
 )
 
 
@@ -78,7 +82,9 @@ def residual_slips(
     names = tuple(candidates)
     if not names:
         return names, np.full(r.shape, -1, dtype=np.intp)
-    cand = np.stack([np.broadcast_to(np.asarray(candidates[n], dtype=float), r.shape) for n in names])
+    cand = np.stack(
+        [np.broadcast_to(np.asarray(candidates[n], dtype=float), r.shape) for n in names]
+    )
     dist = np.abs(cand - r[None, ...])
     dist = np.where(np.isnan(dist) | (np.abs(cand) <= tol[None, ...]), np.inf, dist)
     best = np.argmin(dist, axis=0)

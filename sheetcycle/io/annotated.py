@@ -62,8 +62,15 @@ VALUE_HEADINGS: dict[str, str] = {
 WITH_UNCERTAINTY = ("lattice_enthalpy", "closure_residual")
 
 #: Terms in the order a reader follows the cycle: the metal, the non-metal, then the solid.
-_FORMULA_ORDER = ("atomization_metal", "ionization", "atomization_nonmetal", "electron_gain_1",
-                  "electron_gain_higher", "formation_enthalpy", "lattice_enthalpy")
+_FORMULA_ORDER = (
+    "atomization_metal",
+    "ionization",
+    "atomization_nonmetal",
+    "electron_gain_1",
+    "electron_gain_higher",
+    "formation_enthalpy",
+    "lattice_enthalpy",
+)
 assert set(_FORMULA_ORDER) == set(TERMS)
 _TOKEN = re.compile(r"\{R\|([^{}|]+)\|([a-z_]+)\|(\d+)\}")
 _SIMPLE = re.compile(r"^(?:\$?[A-Z]{1,3}\$?\d+|'[^']+'!\$?[A-Z]{1,3}\$?\d+)$")
@@ -101,8 +108,11 @@ def _linear(pieces: Sequence[tuple[float, str]]) -> str:
     return out or "0"
 
 
-def cycle_formula(trace: Mapping[str, Any], solve_for: str, refs: Callable[[str, str, int], str],
-                  ) -> str | None:
+def cycle_formula(
+    trace: Mapping[str, Any],
+    solve_for: str,
+    refs: Callable[[str, str, int], str],
+) -> str | None:
     """The spreadsheet formula that solves a row's cycle for one term, or None.
 
     ``refs`` maps a reference placeholder (element, quantity, index) to a cell address.
@@ -160,8 +170,9 @@ def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
     by_sheet_row = {(r.sheet, r.row): r for r in run.rows}
     sheets = {s.name: s for s in book.sheets}
     for table in run.tables:
-        if (table.column("formula") is None and table.column("reaction_equation") is None) \
-                or table.sheet not in sheets:
+        if (
+            table.column("formula") is None and table.column("reaction_equation") is None
+        ) or table.sheet not in sheets:
             continue
         rows = [by_sheet_row.get((table.sheet, table.first_row + i)) for i in range(table.n_rows)]
         addition = _table_columns(table, rows, sheets[table.sheet], refs, plan)
@@ -174,8 +185,13 @@ def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
     return plan
 
 
-def _table_columns(table: Table, rows: Sequence[RowResult | None], sheet: SheetCells,
-                   refs: Callable[[str, str, int], str], plan: AnnotationPlan) -> SheetAddition | None:
+def _table_columns(
+    table: Table,
+    rows: Sequence[RowResult | None],
+    sheet: SheetCells,
+    refs: Callable[[str, str, int], str],
+    plan: AnnotationPlan,
+) -> SheetAddition | None:
     names = [n for n in VALUE_HEADINGS if any(r is not None and n in r.values for r in rows)]
     extra = sorted({n for r in rows if r is not None for n in r.values} - set(VALUE_HEADINGS))
     if not names and not extra and not any(r is not None and r.flags for r in rows):
@@ -207,19 +223,30 @@ def _table_columns(table: Table, rows: Sequence[RowResult | None], sheet: SheetC
             if part == "value" and r is not None and r.trace:
                 formula = _value_formula(name, r, sheet_row, col_of, refs)
             if formula is not None:
-                plan.formulas.append((table.sheet, a1(sheet_row - 1, col_of[key]), formula,
-                                      float(number)))
+                plan.formulas.append(
+                    (table.sheet, a1(sheet_row - 1, col_of[key]), formula, float(number))
+                )
             cells.append(AddedCell(float(number), formula=formula, style="number"))
         heading = VALUE_HEADINGS.get(name, _heading_of(name, rows))
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
         columns.append(AddedColumn(heading, cells, number_format="0.0"))
-    flags_cells = [AddedCell(_flag_text(r.flags), style=_worst(r.flags).value if r.flags else None)
-                   if r is not None and r.flags else AddedCell(None) for r in rows]
+    flags_cells = [
+        AddedCell(_flag_text(r.flags), style=_worst(r.flags).value if r.flags else None)
+        if r is not None and r.flags
+        else AddedCell(None)
+        for r in rows
+    ]
     columns.append(AddedColumn("sheetcycle flags", flags_cells, number_format=None, width=60))
     header_cell = a1(table.header_row - 1, min(c.col for c in table.columns))
-    return SheetAddition(table.sheet, table.header_row, table.first_row, start, columns,
-                         header_style_cell=header_cell)
+    return SheetAddition(
+        table.sheet,
+        table.header_row,
+        table.first_row,
+        start,
+        columns,
+        header_style_cell=header_cell,
+    )
 
 
 def _heading_of(name: str, rows: Sequence[RowResult | None]) -> str:
@@ -228,9 +255,13 @@ def _heading_of(name: str, rows: Sequence[RowResult | None]) -> str:
     return f"{label} / {unit}" if unit else label
 
 
-def _value_formula(name: str, r: RowResult, sheet_row: int,
-                   col_of: Mapping[tuple[str, str], int],
-                   refs: Callable[[str, str, int], str]) -> str | None:
+def _value_formula(
+    name: str,
+    r: RowResult,
+    sheet_row: int,
+    col_of: Mapping[tuple[str, str], int],
+    refs: Callable[[str, str, int], str],
+) -> str | None:
     trace = r.trace
     if name == "lattice_enthalpy":
         return cycle_formula(trace, "lattice_enthalpy", refs)
@@ -241,8 +272,12 @@ def _value_formula(name: str, r: RowResult, sheet_row: int,
             return None
         return f"{a1(sheet_row - 1, lat)}-{_paren(given)}"
     solved = trace.get("solved")
-    if solved is not None and name in ("formation_enthalpy", "electron_gain_enthalpy",
-                                       "atomization_enthalpy", "ionization_energy"):
+    if solved is not None and name in (
+        "formation_enthalpy",
+        "electron_gain_enthalpy",
+        "atomization_enthalpy",
+        "ionization_energy",
+    ):
         return cycle_formula(trace, solved, refs)
     return None
 
@@ -267,20 +302,50 @@ def _method_rows(run: RunResult) -> tuple[list[list[AddedCell | None]], int]:
         [t("input"), t(Path(run.input).name)],
         [],
         [t("conventions", style="header")],
-        [t("lattice enthalpy"), t("dissociation convention: MaXb(s) → a M^p+(g) + b X^q−(g), "
-                                  "positive, kJ per mol of formula unit")],
-        [t("electron gain"), t("thermochemical electron-gain enthalpy: negative when energy is "
-                               "released (Cl ≈ −349 kJ/mol); a second gain is positive")],
-        [t("Born-Haber cycle"), t("ΔH_L = a·(ΔatH(M) + IE1 + … + IEp) + b·(ΔatH(X) + ΔegH1 + … "
-                                  "+ ΔegHq) − ΔfH(MaXb, s)")],
-        [t("closure residual"), t("cycle lattice enthalpy minus the given lattice enthalpy; "
-                                  "flagged when larger than max(2σ, tolerance)")],
-        [t("uncertainties"), t("a value used n times contributes n·σ; distinct values add in "
-                               "quadrature; uncertainty cells hold values, not formulas")],
+        [
+            t("lattice enthalpy"),
+            t(
+                "dissociation convention: MaXb(s) → a M^p+(g) + b X^q−(g), "
+                "positive, kJ per mol of formula unit"
+            ),
+        ],
+        [
+            t("electron gain"),
+            t(
+                "thermochemical electron-gain enthalpy: negative when energy is "
+                "released (Cl ≈ −349 kJ/mol); a second gain is positive"
+            ),
+        ],
+        [
+            t("Born-Haber cycle"),
+            t(
+                "ΔH_L = a·(ΔatH(M) + IE1 + … + IEp) + b·(ΔatH(X) + ΔegH1 + … "
+                "+ ΔegHq) − ΔfH(MaXb, s)"
+            ),
+        ],
+        [
+            t("closure residual"),
+            t(
+                "cycle lattice enthalpy minus the given lattice enthalpy; "
+                "flagged when larger than max(2σ, tolerance)"
+            ),
+        ],
+        [
+            t("uncertainties"),
+            t(
+                "a value used n times contributes n·σ; distinct values add in "
+                "quadrature; uncertainty cells hold values, not formulas"
+            ),
+        ],
         [t("missing values"), t("blank, text and spreadsheet errors are missing, never zero")],
-        [t("formulas"), t("every computed value that a formula can express is a formula over the "
-                          "row's own cells and the reference values below; edit an input and "
-                          "it recomputes")],
+        [
+            t("formulas"),
+            t(
+                "every computed value that a formula can express is a formula over the "
+                "row's own cells and the reference values below; edit an input and "
+                "it recomputes"
+            ),
+        ],
         [],
         [t("settings", style="header")],
     ]
@@ -288,26 +353,56 @@ def _method_rows(run: RunResult) -> tuple[list[list[AddedCell | None]], int]:
         rows.append([t(str(key)), t(_setting_text(value))])
     rows += [[], [t("flag fills", style="header")]]
     for sev in ("error", "warning", "note"):
-        rows.append([t(sev, style=sev), t({"error": "the row's result is missing or wrong because "
-                                                    "of this",
-                                           "warning": "a result exists but should be looked at",
-                                           "note": "information: a convention applied, a default "
-                                                   "used"}[sev])])
-    rows += [[], [t("reference values used", style="header")],
-             [t("element", style="header"), t("quantity", style="header"),
-              t("index", style="header"), t("value / kJ mol⁻¹", style="header"),
-              t("uncertainty", style="header"), t("source", style="header")]]
+        rows.append(
+            [
+                t(sev, style=sev),
+                t(
+                    {
+                        "error": "the row's result is missing or wrong because of this",
+                        "warning": "a result exists but should be looked at",
+                        "note": "information: a convention applied, a default used",
+                    }[sev]
+                ),
+            ]
+        )
+    rows += [
+        [],
+        [t("reference values used", style="header")],
+        [
+            t("element", style="header"),
+            t("quantity", style="header"),
+            t("index", style="header"),
+            t("value / kJ mol⁻¹", style="header"),
+            t("uncertainty", style="header"),
+            t("source", style="header"),
+        ],
+    ]
     start = len(rows) + 1
     for use in run.references:
         unc = None if use.uncertainty != use.uncertainty else use.uncertainty
-        rows.append([t(use.element), t(use.quantity), t(float(use.index), style="number"),
-                     t(use.value, style="number"), t(unc, style="number") if unc is not None
-                     else None, t(use.source)])
-    rows += [[], [t("caution", style="header")],
-             [t("safety"), t("computed enthalpies are estimates from tabulated data; where they "
-                             "point to a large heat release, calorimetry and a hazard assessment "
-                             "come before any scale-up, and local codes and licensed practice "
-                             "govern")]]
+        rows.append(
+            [
+                t(use.element),
+                t(use.quantity),
+                t(float(use.index), style="number"),
+                t(use.value, style="number"),
+                t(unc, style="number") if unc is not None else None,
+                t(use.source),
+            ]
+        )
+    rows += [
+        [],
+        [t("caution", style="header")],
+        [
+            t("safety"),
+            t(
+                "computed enthalpies are estimates from tabulated data; where they "
+                "point to a large heat release, calorimetry and a hazard assessment "
+                "come before any scale-up, and local codes and licensed practice "
+                "govern"
+            ),
+        ],
+    ]
     return rows, start
 
 
@@ -319,28 +414,47 @@ def _setting_text(value: object) -> str:
 
 def _flags_sheet(run: RunResult) -> NewSheet:
     t = AddedCell
-    rows: list[list[AddedCell | None]] = [[t(h, style="header") for h in
-                                           ("sheet", "cell", "code", "severity", "message")]]
+    rows: list[list[AddedCell | None]] = [
+        [t(h, style="header") for h in ("sheet", "cell", "code", "severity", "message")]
+    ]
     links: dict[tuple[int, int], str] = {}
     flags = [f for r in run.rows for f in r.flags] + list(run.file_flags)
     for f in flags:
         r0 = len(rows)
-        rows.append([t(f.sheet or ""), t(f.cell or ""), t(f.code),
-                     t(f.severity.value, style=f.severity.value), t(f.message)])
+        rows.append(
+            [
+                t(f.sheet or ""),
+                t(f.cell or ""),
+                t(f.code),
+                t(f.severity.value, style=f.severity.value),
+                t(f.message),
+            ]
+        )
         if f.sheet and f.cell:
             links[(r0, 1)] = f"{_q(f.sheet)}!{f.cell}"
     return NewSheet(FLAGS_SHEET, rows, col_widths=(16, 8, 22, 9, 110), links=links)
 
 
-def write_annotated_copy(run: RunResult, book: WorkbookCells, src: Path, dst: Path, *,
-                         force: bool = False,
-                         verify: Callable[[AnnotationPlan, WorkbookCells], None] | None = None,
-                         ) -> AnnotationPlan:
+def write_annotated_copy(
+    run: RunResult,
+    book: WorkbookCells,
+    src: Path,
+    dst: Path,
+    *,
+    force: bool = False,
+    verify: Callable[[AnnotationPlan, WorkbookCells], None] | None = None,
+) -> AnnotationPlan:
     """Plan, verify every formula, and write the annotated copy (all or nothing)."""
     plan = plan_annotations(run, book)
     (verify or verify_formulas)(plan, book)
-    write_annotated(src, dst, additions=plan.additions, notes=plan.notes,
-                    new_sheets=plan.new_sheets, force=force)
+    write_annotated(
+        src,
+        dst,
+        additions=plan.additions,
+        notes=plan.notes,
+        new_sheets=plan.new_sheets,
+        force=force,
+    )
     return plan
 
 
@@ -357,9 +471,11 @@ def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1
     problems = check_formulas(plan.formulas, book, values, rel=rel)
     if problems:
         first = problems[0]
-        raise WriteError(f"internal check failed: the formula in {first[0]}!{first[1]} "
-                         f"(={first[2]}) gives {first[4]!r}, the engine {first[3]!r}; "
-                         f"{len(problems)} formula(s) disagree; nothing was written")
+        raise WriteError(
+            f"internal check failed: the formula in {first[0]}!{first[1]} "
+            f"(={first[2]}) gives {first[4]!r}, the engine {first[3]!r}; "
+            f"{len(problems)} formula(s) disagree; nothing was written"
+        )
 
 
 def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:

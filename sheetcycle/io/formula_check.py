@@ -21,7 +21,9 @@ from sheetcycle.io.cells import CellError, WorkbookCells
 
 __all__ = ["check_formulas", "formula_shape"]
 
-_REF = re.compile(r"(?:'((?:[^']|'')+)'|([A-Za-z_][A-Za-z0-9_.]*))?(!)?\$?([A-Z]{1,3})\$?(\d+)(?![\w(])")
+_REF = re.compile(
+    r"(?:'((?:[^']|'')+)'|([A-Za-z_][A-Za-z0-9_.]*))?(!)?\$?([A-Z]{1,3})\$?(\d+)(?![\w(])"
+)
 
 
 def _col_index(letters: str) -> int:
@@ -57,8 +59,11 @@ def _compiled(template: str) -> Any:
     return formulas.Parser().ast("=" + template)[1].compile()
 
 
-def _value(grids: Mapping[str, list[list[object]]], extra: Mapping[tuple[str, int, int], object],
-           key: tuple[str, int, int]) -> float:
+def _value(
+    grids: Mapping[str, list[list[object]]],
+    extra: Mapping[tuple[str, int, int], object],
+    key: tuple[str, int, int],
+) -> float:
     v = extra.get(key, _MISSING)
     if v is _MISSING:
         sheet, r, c = key
@@ -110,8 +115,10 @@ def check_formulas(
     for template, members in groups.items():
         fn = _compiled(template)
         n_inputs = len(members[0][1])
-        columns = [np.array([_value(grids, extra, refs[j]) for _, refs in members])
-                   for j in range(n_inputs)]
+        columns = [
+            np.array([_value(grids, extra, refs[j]) for _, refs in members])
+            for j in range(n_inputs)
+        ]
         order = [int(name[2:]) - 1 for name in fn.inputs]
         raw = np.asarray(fn(*[columns[j] for j in order]), dtype=object).reshape(-1)
         if raw.shape[0] != len(members):

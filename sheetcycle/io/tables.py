@@ -42,7 +42,16 @@ HEADER_SEARCH_ROWS = 30
 
 #: Quantities whose cells are kept as text, not numbers.
 TEXT_QUANTITIES = frozenset(
-    {"formula", "name", "state", "element", "structure_type", "reaction_equation", "source", "notes"}
+    {
+        "formula",
+        "name",
+        "state",
+        "element",
+        "structure_type",
+        "reaction_equation",
+        "source",
+        "notes",
+    }
 )
 #: Quantities that anchor a table: a header row needs one of them.
 ANCHORS = frozenset({"formula", "element", "reaction_equation"})
@@ -58,8 +67,15 @@ INTERNAL_UNIT = {
     "dimensionless": "",
 }
 #: The unit assumed (with a flag) for a column whose header and units row give none.
-DEFAULT_UNIT = {"energy": "kJ/mol", "length": "pm", "density": "g/cm3", "volume": "nm3",
-                "temperature": "K", "heat_capacity": "J/(mol K)", "dimensionless": ""}
+DEFAULT_UNIT = {
+    "energy": "kJ/mol",
+    "length": "pm",
+    "density": "g/cm3",
+    "volume": "nm3",
+    "temperature": "K",
+    "heat_capacity": "J/(mol K)",
+    "dimensionless": "",
+}
 
 
 @dataclass(frozen=True)
@@ -150,22 +166,34 @@ def numeric_cells(cells: Iterable[object]) -> tuple[np.ndarray, np.ndarray, dict
     return np.asarray(vals, dtype=float), np.asarray(uncs, dtype=float), reasons
 
 
-def _score(row: Sequence[object], sheet: str,
-           overrides: Sequence[ColumnOverride]) -> tuple[int, list[HeaderMatch | None]]:
+def _score(
+    row: Sequence[object], sheet: str, overrides: Sequence[ColumnOverride]
+) -> tuple[int, list[HeaderMatch | None]]:
     """How much a row looks like a header: recognised columns, counting the user's overrides."""
     matches = [recognise(t) if (t := _text(v)) else None for v in row]
-    said = [next((o.quantity for o in overrides
-                  if o.quantity and o.quantity != "ignore" and o.applies(sheet, c, _text(v) or "")),
-                 None) for c, v in enumerate(row)]
-    quantities = [q or (m.quantity if m is not None and not m.uncertainty else None)
-                  for q, m in zip(said, matches, strict=True)]
+    said = [
+        next(
+            (
+                o.quantity
+                for o in overrides
+                if o.quantity and o.quantity != "ignore" and o.applies(sheet, c, _text(v) or "")
+            ),
+            None,
+        )
+        for c, v in enumerate(row)
+    ]
+    quantities = [
+        q or (m.quantity if m is not None and not m.uncertainty else None)
+        for q, m in zip(said, matches, strict=True)
+    ]
     anchored = any(q in ANCHORS for q in quantities)
     n = sum(1 for q in quantities if q is not None)
     return (n if anchored and n >= 2 else 0), matches
 
 
-def _find_header(rows: Sequence[Sequence[object]], start: int, sheet: str,
-                 overrides: Sequence[ColumnOverride]) -> tuple[int, list[HeaderMatch | None]] | None:
+def _find_header(
+    rows: Sequence[Sequence[object]], start: int, sheet: str, overrides: Sequence[ColumnOverride]
+) -> tuple[int, list[HeaderMatch | None]] | None:
     best: tuple[int, int, list[HeaderMatch | None]] | None = None
     for r in range(start, min(start + HEADER_SEARCH_ROWS, len(rows))):
         s, matches = _score(rows[r], sheet, overrides)
@@ -226,8 +254,11 @@ def find_tables(
         specs.append((c, header, matches[c], ov))
 
     anchor = next(
-        (c for c, _, m, ov in specs
-         if (ov.quantity if ov and ov.quantity else (m.quantity if m else None)) in ANCHORS),
+        (
+            c
+            for c, _, m, ov in specs
+            if (ov.quantity if ov and ov.quantity else (m.quantity if m else None)) in ANCHORS
+        ),
         None,
     )
     if anchor is None:
@@ -261,37 +292,75 @@ def find_tables(
             columns.append(Column(header=header, col=c, quantity=None, note=explain(header)))
             continue
         if m is not None and m.uncertainty and not (ov and ov.quantity):
-            columns.append(Column(header=header, col=c, quantity="uncertainty",
-                                  note=f"uncertainty of {m.target or 'the column to its left'}"))
+            columns.append(
+                Column(
+                    header=header,
+                    col=c,
+                    quantity="uncertainty",
+                    note=f"uncertainty of {m.target or 'the column to its left'}",
+                )
+            )
             continue
         index = ov.index if ov and ov.index is not None else (m.index if m else 0)
         convention = ov.convention if ov and ov.convention else (m.convention if m else None)
         kind = m.kind if m is not None and m.quantity == quantity else _kind_of(quantity)
         cells = [_cell(rows, r, c) for r in range(first, first + n)]
         if quantity in TEXT_QUANTITIES or kind == "text":
-            texts = tuple(_text(v) if isinstance(v, str) else (None if v is None else _plain(v))
-                          for v in cells)
-            columns.append(Column(header=header, col=c, quantity=quantity, index=index,
-                                  convention=convention, texts=texts))
+            texts = tuple(
+                _text(v) if isinstance(v, str) else (None if v is None else _plain(v))
+                for v in cells
+            )
+            columns.append(
+                Column(
+                    header=header,
+                    col=c,
+                    quantity=quantity,
+                    index=index,
+                    convention=convention,
+                    texts=texts,
+                )
+            )
             continue
-        unit_text = (ov.unit if ov and ov.unit else None) or (m.unit_text if m else None) \
-            or (units_row.get(c) if units_row else None) or (split_header(header)[1])
+        unit_text = (
+            (ov.unit if ov and ov.unit else None)
+            or (m.unit_text if m else None)
+            or (units_row.get(c) if units_row else None)
+            or (split_header(header)[1])
+        )
         if not unit_text and kind != "dimensionless":
             unit_text = DEFAULT_UNIT[kind]
             if kind == "energy":
-                flags.append(Flag(
-                    "unit-assumed", Severity.WARNING,
-                    f"column '{header}' gives no unit; its values were read as {unit_text}. "
-                    f"Add the unit to the header (e.g. '{header} / kJ mol-1') to be sure.",
-                    sheet.name, cell))
+                flags.append(
+                    Flag(
+                        "unit-assumed",
+                        Severity.WARNING,
+                        f"column '{header}' gives no unit; its values were read as {unit_text}. "
+                        f"Add the unit to the header (e.g. '{header} / kJ mol-1') to be sure.",
+                        sheet.name,
+                        cell,
+                    )
+                )
         try:
             conv: Conversion = conversion(unit_text or "", kind)
         except UnitError as exc:
-            flags.append(Flag("unit-unusable", Severity.ERROR,
-                              f"column '{header}': {exc.problem}; the column was not used",
-                              sheet.name, cell))
-            columns.append(Column(header=header, col=c, quantity=None, unit=unit_text,
-                                  note=f"unit not usable: {exc.problem}"))
+            flags.append(
+                Flag(
+                    "unit-unusable",
+                    Severity.ERROR,
+                    f"column '{header}': {exc.problem}; the column was not used",
+                    sheet.name,
+                    cell,
+                )
+            )
+            columns.append(
+                Column(
+                    header=header,
+                    col=c,
+                    quantity=None,
+                    unit=unit_text,
+                    note=f"unit not usable: {exc.problem}",
+                )
+            )
             continue
         raw, unc, reasons = numeric_cells(cells)
         if conv.per_entity == "atom":
@@ -307,19 +376,42 @@ def find_tables(
                 code, sev = "cell-missing", Severity.NOTE
             else:
                 code, sev = "cell-not-number", Severity.ERROR
-            flags.append(Flag(code, sev, f"column '{header}' row {first + i + 1}: {why}",
-                              sheet.name, a1(first + i, c)))
-        columns.append(Column(header=header, col=c, quantity=quantity, index=index,
-                              unit=conv.unit_text, factor=conv.factor, convention=convention,
-                              values=values, uncertainties=uncs,
-                              atoms=atoms() if conv.per_entity == "atom" else None,
-                              from_text=np.fromiter((type(v) is str for v in cells), dtype=bool,
-                                                    count=len(cells))))
+            flags.append(
+                Flag(
+                    code,
+                    sev,
+                    f"column '{header}' row {first + i + 1}: {why}",
+                    sheet.name,
+                    a1(first + i, c),
+                )
+            )
+        columns.append(
+            Column(
+                header=header,
+                col=c,
+                quantity=quantity,
+                index=index,
+                unit=conv.unit_text,
+                factor=conv.factor,
+                convention=convention,
+                values=values,
+                uncertainties=uncs,
+                atoms=atoms() if conv.per_entity == "atom" else None,
+                from_text=np.fromiter(
+                    (type(v) is str for v in cells), dtype=bool, count=len(cells)
+                ),
+            )
+        )
 
     columns = _pair_uncertainties(columns, rows, first, n, sheet.name, flags)
-    table = Table(sheet=sheet.name, header_row=hr + 1, first_row=first + 1,
-                  last_row=first + n, columns=tuple(columns),
-                  units_row=hr + 2 if units_row else None)
+    table = Table(
+        sheet=sheet.name,
+        header_row=hr + 1,
+        first_row=first + 1,
+        last_row=first + n,
+        columns=tuple(columns),
+        units_row=hr + 2 if units_row else None,
+    )
     return [table], flags
 
 
@@ -338,14 +430,20 @@ def _kind_of(quantity: str) -> str:
     return QUANTITY_KINDS.get(quantity, "energy")
 
 
-def _pair_uncertainties(columns: list[Column], rows: Sequence[Sequence[object]], first: int,
-                        n: int, sheet: str, flags: list[Flag]) -> list[Column]:
+def _pair_uncertainties(
+    columns: list[Column],
+    rows: Sequence[Sequence[object]],
+    first: int,
+    n: int,
+    sheet: str,
+    flags: list[Flag],
+) -> list[Column]:
     """Attach each uncertainty column to the value column it belongs to."""
     out = list(columns)
     for j, col in enumerate(columns):
         if col.quantity != "uncertainty":
             continue
-        target_q = col.note[len("uncertainty of "):] if col.note else ""
+        target_q = col.note[len("uncertainty of ") :] if col.note else ""
         target: int | None = None
         for k in range(len(out)):
             if out[k].quantity == target_q and out[k].values is not None:
@@ -356,9 +454,15 @@ def _pair_uncertainties(columns: list[Column], rows: Sequence[Sequence[object]],
                     target = k
                     break
         if target is None:
-            flags.append(Flag("uncertainty-unpaired", Severity.WARNING,
-                              f"uncertainty column '{col.header}' has no value column to belong to",
-                              sheet, a1(first - 1, col.col)))
+            flags.append(
+                Flag(
+                    "uncertainty-unpaired",
+                    Severity.WARNING,
+                    f"uncertainty column '{col.header}' has no value column to belong to",
+                    sheet,
+                    a1(first - 1, col.col),
+                )
+            )
             continue
         t = out[target]
         raw, _, _ = numeric_cells(_cell(rows, r, col.col) for r in range(first, first + n))

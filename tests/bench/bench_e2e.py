@@ -20,18 +20,47 @@ from pathlib import Path
 import xlsxwriter
 
 # (formula, ΔfH, lattice enthalpy): roughly handbook-like, perturbed (invented for the benchmark)
-SALTS = [("NaCl", -411.2, 787), ("KCl", -436.5, 717), ("LiF", -616.0, 1047), ("KBr", -393.8, 689),
-         ("NaBr", -361.1, 752), ("MgO", -601.6, 3843), ("CaO", -634.9, 3454), ("CaF2", -1228.0, 2644),
-         ("MgCl2", -641.3, 2522), ("KI", -327.9, 645), ("NaF", -576.6, 928), ("CsCl", -443.0, 659),
-         ("RbCl", -435.4, 692), ("LiCl", -408.6, 861), ("SrO", -592.0, 3270), ("BaO", -548.0, 3093),
-         ("AgCl", -127.0, 915), ("CuCl", -137.2, 993), ("CaCl2", -795.4, 2253), ("Na2O", -414.2, 2528)]
+SALTS = [
+    ("NaCl", -411.2, 787),
+    ("KCl", -436.5, 717),
+    ("LiF", -616.0, 1047),
+    ("KBr", -393.8, 689),
+    ("NaBr", -361.1, 752),
+    ("MgO", -601.6, 3843),
+    ("CaO", -634.9, 3454),
+    ("CaF2", -1228.0, 2644),
+    ("MgCl2", -641.3, 2522),
+    ("KI", -327.9, 645),
+    ("NaF", -576.6, 928),
+    ("CsCl", -443.0, 659),
+    ("RbCl", -435.4, 692),
+    ("LiCl", -408.6, 861),
+    ("SrO", -592.0, 3270),
+    ("BaO", -548.0, 3093),
+    ("AgCl", -127.0, 915),
+    ("CuCl", -137.2, 993),
+    ("CaCl2", -795.4, 2253),
+    ("Na2O", -414.2, 2528),
+]
 
 
 def make(path: Path, rows: int) -> None:
     wb = xlsxwriter.Workbook(str(path), {"constant_memory": True})
     ws = wb.add_worksheet("Salts")
-    ws.write_row(0, 0, ["Compound", "State", "ΔfH° / kJ mol⁻¹", "±", "ΔLH lit. / kJ mol⁻¹",
-                        "IE1 [eV]", "Batch", "Notes"])
+    ws.write_row(
+        0,
+        0,
+        [
+            "Compound",
+            "State",
+            "ΔfH° / kJ mol⁻¹",
+            "±",
+            "ΔLH lit. / kJ mol⁻¹",
+            "IE1 [eV]",
+            "Batch",
+            "Notes",
+        ],
+    )
     for r in range(1, rows + 1):
         f, h, lat = SALTS[r % len(SALTS)]
         ws.write_string(r, 0, f)
@@ -51,7 +80,9 @@ def child(code: str) -> tuple[float, float]:
     t0 = time.perf_counter()
     proc = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True, text=True)
     wall = time.perf_counter() - t0
-    peak = next(int(line.split()[1]) for line in proc.stdout.splitlines() if line.startswith("PEAK"))
+    peak = next(
+        int(line.split()[1]) for line in proc.stdout.splitlines() if line.startswith("PEAK")
+    )
     return wall, peak / 1024.0
 
 
@@ -60,20 +91,26 @@ def main(rows: int = 100_000) -> None:
         src = Path(tmp) / "salts.xlsx"
         t0 = time.perf_counter()
         make(src, rows)
-        print(f"generated rows={rows} cols=8 seconds={time.perf_counter() - t0:.1f} "
-              f"bytes={src.stat().st_size}")
+        print(
+            f"generated rows={rows} cols=8 seconds={time.perf_counter() - t0:.1f} "
+            f"bytes={src.stat().st_size}"
+        )
         # each measurement in its own process so the peak RSS is its own
         ours_t, ours_m = child(
             "from sheetcycle.cli import main\n"
             f"assert main(['annotate', {str(src)!r}, '-o', {str(Path(tmp) / 'out.xlsx')!r}, "
-            "'-q']) == 0")
+            "'-q']) == 0"
+        )
         ref_t, ref_m = child(
             "import openpyxl; "
-            f"wb = openpyxl.load_workbook({str(src)!r}); wb.save({str(Path(tmp) / 'op.xlsx')!r})")
+            f"wb = openpyxl.load_workbook({str(src)!r}); wb.save({str(Path(tmp) / 'op.xlsx')!r})"
+        )
         print(f"openpyxl_load_save seconds={ref_t:.2f} peak_rss_mib={ref_m:.0f}")
         print(f"sheetcycle_annotate seconds={ours_t:.2f} peak_rss_mib={ours_m:.0f}")
-        print(f"time_ratio={ours_t / ref_t:.3f} target<=0.25 "
-              f"memory_ratio={ours_m / ref_m:.3f} target<=0.60")
+        print(
+            f"time_ratio={ours_t / ref_t:.3f} target<=0.25 "
+            f"memory_ratio={ours_m / ref_m:.3f} target<=0.60"
+        )
 
 
 if __name__ == "__main__":

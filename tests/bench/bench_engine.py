@@ -25,16 +25,22 @@ def main(n: int = 1_000_000) -> None:
     values["formation_enthalpy"][rng.random(n) < 0.05] = np.nan
     sigmas = {t: np.full(n, 1.0) for t in TERMS}
     terms = CycleTerms.from_columns(
-        n_cation=rng.integers(1, 3, n), n_anion=rng.integers(1, 4, n),
-        anion_charge=rng.integers(1, 3, n), values=values, sigmas=sigmas)
+        n_cation=rng.integers(1, 3, n),
+        n_anion=rng.integers(1, 4, n),
+        anion_charge=rng.integers(1, 3, n),
+        values=values,
+        sigmas=sigmas,
+    )
     times = []
     for _ in range(5):
         t0 = time.perf_counter()
         close_cycles(terms)
         times.append(time.perf_counter() - t0)
     best = min(times)
-    print(f"engine rows={n} best_s={best:.3f} median_s={sorted(times)[2]:.3f} "
-          f"rows_per_s={n / best:,.0f} target_s=1.000 ratio_to_target={best / 1.0:.2f}")
+    print(
+        f"engine rows={n} best_s={best:.3f} median_s={sorted(times)[2]:.3f} "
+        f"rows_per_s={n / best:,.0f} target_s=1.000 ratio_to_target={best / 1.0:.2f}"
+    )
 
 
 if __name__ == "__main__":
