@@ -250,3 +250,79 @@ def test_workbook_written_by_xlsxwriter_with_zero_caches(tmp_path: Path) -> None
         a, b = r * 0.5, 100.0 - r
         assert rows[r][2] == pytest.approx(a * 4.184 - (b + a) / 2)
         assert rows[r][3] == pytest.approx(a * 4.184 - (b + a) / 2 + b)
+
+
+# ----------------------------------------------------------------------------- oracle
+
+
+def test_matches_formulas_excelmodel_on_a_small_workbook(tmp_path: Path) -> None:
+    # Independent oracle: formulas.ExcelModel parses and evaluates every cell on its own
+    # (no shape grouping, no column arrays), from the file.
+    import formulas
+
+    path = tmp_path / "oracle.xlsx"
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Data"
+    ws.append(["Compound", "kcal", "x", "y", "kJ", "mean", "chain", "named", "other", "sum"])
+    n = 30
+    for r in range(2, n + 2):
+        ws.append([
+            f"C{r}", -90.0 - r * 1.37, r * 0.5, 10.0 - r, f"=B{r}*4.184", f"=(C{r}+D{r})/2",
+            f"=B{r}-E{r}+F{r}", f"=C{r}*ratio", f"=Factors!$B$2*D{r}+Factors!B3",
+            f"=SUM(C{r}:D{r})+IF(C{r}>5,1,-1)+ROUND(AVERAGE($C$2:$C${n + 1}),3)",
+        ])  # fmt: skip
+    other = wb.create_sheet("Factors")
+    other["B2"] = 2.5
+    other["B3"] = -1.25
+    wb.defined_names["ratio"] = DefinedName("ratio", attr_text="Factors!$B$2")
+    wb.save(path)
+
+    ours = read_cells(path).sheet("Data").rows
+    solution = formulas.ExcelModel().loads(str(path)).finish().calculate()
+    book = "[oracle.xlsx]"
+    checked = 0
+    for r in range(1, n + 1):
+        for c in range(4, 10):
+            key = f"'{book}DATA'!{openpyxl.utils.get_column_letter(c + 1)}{r + 1}"
+            expected = float(solution[key].value[0, 0])
+            assert ours[r][c] == pytest.approx(expected, rel=1e-12, abs=1e-12), key
+            checked += 1
+    assert checked == n * 6
+
+
+# ----------------------------------------------------------------------------- verifying
+
+
+def test_verify_formula_true_and_messages() -> None:
+    from sheetcycle.io.evaluate import verify_formula
+
+    assert verify_formula("=B2*4.184", {"B2": -98.26}, -98.26 * 4.184) is True
+    assert verify_formula("=B2*4.184", {"B2": -98.26}, -98.26 * 4.184 * (1 + 1e-12)) is True
+    got = verify_formula("=B2*4.184", {"B2": 2.0}, 8.37)
+    assert got == "=B2*4.184 gives 8.368, expected 8.37"
+    got = verify_formula("=B2-'Ref data'!A1+Sheet2!C3", {"B2": 5.0, "'Ref data'!A1": 1.5,
+                                                         "Sheet2!C3": 0.25}, 5.0 - 1.5 + 0.25)
+    assert got is True
+    got = verify_formula("=B2/C2", {"B2": 2.0}, 1.0)
+    assert isinstance(got, str) and "#DIV/0!" in got
+    assert verify_formula('=A1&"x"', {"A1": "NaCl"}, "NaClx") is True
+    with pytest.raises(ValueError):
+        verify_formula("=A1", {"not a cell": 1.0}, 1.0)
+
+
+def test_verify_formulas_a_column_at_once() -> None:
+    from sheetcycle.io.evaluate import verify_formulas
+
+    n = 2000
+    grid: list[list[object]] = [[r * 0.5, 100.0 - r] for r in range(n)]
+    items = [
+        ("S", r, 2, f"=A{r + 1}*4.184-(B{r + 1}+A{r + 1})/2",
+         r * 0.5 * 4.184 - (100.0 - r + r * 0.5) / 2 + (1.0 if r == 777 else 0.0))
+        for r in range(n)
+    ]  # fmt: skip
+    got = verify_formulas({"S": grid}, items)
+    bad = [i for i, g in enumerate(got) if g is not True]
+    assert bad == [777]
+    assert got[777].startswith("S!C778: =A778*4.184-(B778+A778)/2 gives ")
+    assert len(grid[0]) == 2  # the caller's grid is left alone

@@ -35,6 +35,10 @@ __all__ = [
     "col_letters",
     "evaluate_cells",
     "shift_formula",
+    "show_value",
+    "values_match",
+    "verify_formula",
+    "verify_formulas",
 ]
 
 MAX_ROW = 1_048_576
@@ -230,7 +234,18 @@ _ELEMENTWISE = frozenset(
 )
 # Functions that need the address of a reference, which placeholders do not carry.
 _NEEDS_ADDRESS = frozenset("ROW COLUMN OFFSET INDIRECT CELL ADDRESS AREAS".split())
-_FUNC = re.compile(r"(?<![\w.])((?:_xlfn\.|_xlws\.)?[A-Za-z][\w.]*)\(")
+_ALL_ELEMENTWISE: frozenset[str] = frozenset()
+
+
+def _elementwise() -> frozenset[str]:
+    """The element-wise functions, with sheetcycle's own (they take whole columns)."""
+    global _ALL_ELEMENTWISE
+    if not _ALL_ELEMENTWISE:
+        from sheetcycle.io.functions import REGISTRY
+
+        _ALL_ELEMENTWISE = _ELEMENTWISE | frozenset(REGISTRY)
+    return _ALL_ELEMENTWISE
+_FUNC = re.compile(r"(?<![\w.])((?:_xlfn\.|_xlws\.|_xludf\.)?[A-Za-z][\w.]*)\(")
 _STRINGS = re.compile(r'"(?:[^"]|"")*"')
 
 
@@ -299,13 +314,16 @@ def _col(letters: str) -> int:
 def _shape_problem(shape: str) -> tuple[CellError | None, bool]:
     """(problem, element-wise) of a shape's functions."""
     bare = _STRINGS.sub('""', shape)
-    funcs = {f.upper().removeprefix("_XLFN.").removeprefix("_XLWS.") for f in _FUNC.findall(bare)}
+    funcs = {
+        f.upper().removeprefix("_XLFN.").removeprefix("_XLWS.").removeprefix("_XLUDF.")
+        for f in _FUNC.findall(bare)
+    }
     bad = funcs & _NEEDS_ADDRESS
     if bad:
         return CellError("#NAME?", f"function {sorted(bad)[0]} is not supported here"), False
     if "[" in bare:
         return CellError("#NAME?", "structured (table) references are not supported"), False
-    return None, funcs <= _ELEMENTWISE
+    return None, funcs <= _elementwise()
 
 
 _DIGITS = re.compile(r"(\d+)")
@@ -523,7 +541,7 @@ class _Conv:
         if isinstance(v, np.ndarray):
             v = v.item() if v.size == 1 else (v.flat[0] if v.size else self.empty)
         if isinstance(v, self.xlerror):
-            return CellError(str(v))
+            return CellError(str(v), getattr(v, "reason", ""))
         if v is self.empty or v is None:
             return 0.0
         if isinstance(v, bool | np.bool_):
@@ -575,12 +593,12 @@ def _order(targets: list[_Target]) -> tuple[list[list[int]], list[int]]:
                     deps.add(j)
                 continue
             for c in range(c1, c2 + 1):
-                rows = by_col.get((s, c))
-                if not rows:
+                in_col = by_col.get((s, c))
+                if not in_col:
                     continue
-                lo = bisect.bisect_left(rows, r1)
-                hi = bisect.bisect_right(rows, r2)
-                for r in rows[lo:hi]:
+                lo = bisect.bisect_left(in_col, r1)
+                hi = bisect.bisect_right(in_col, r2)
+                for r in in_col[lo:hi]:
                     deps.add(where[(s, r, c)])
         pending[i] = len(deps)
         for j in deps:
@@ -683,6 +701,9 @@ def evaluate_cells(
         if fn is None:
             import formulas
 
+            from sheetcycle.io.functions import register
+
+            register()
             try:
                 fn = formulas.Parser().ast(shape)[1].compile()
                 inputs = list(fn.inputs)
@@ -779,3 +800,112 @@ def evaluate_cells(
     for i in stuck:
         store(i, CIRCULAR)
     return {(sheet_names[made[i].sheet], made[i].row, made[i].col): v for i, v in results.items()}
+
+
+# --------------------------------------------------------------------------- comparing
+
+REL_TOLERANCE = 1e-9
+ABS_TOLERANCE = 1e-12  # below this, two numbers count as equal (rounding noise around 0)
+
+
+def values_match(a: object, b: object, rel: float = REL_TOLERANCE) -> bool:
+    """Whether two cell values are the same: numbers within ``rel`` (relative), text,
+    logical values and error codes exactly. A blank (None) matches only a blank."""
+    if isinstance(a, bool) or isinstance(b, bool):
+        return type(a) is type(b) and a == b
+    if isinstance(a, int | float) and isinstance(b, int | float):
+        x, y = float(a), float(b)
+        if x == y:
+            return True
+        return abs(x - y) <= max(rel * max(abs(x), abs(y)), ABS_TOLERANCE)
+    if isinstance(a, CellError) and isinstance(b, CellError):
+        return a.code == b.code
+    return type(a) is type(b) and a == b
+
+
+def show_value(v: object, other: object = None) -> str:
+    """A cell value as a message shows it: numbers with as many digits as it takes to tell
+    them from ``other`` (a number, or None), Unicode minus; text quoted; errors by code."""
+    if v is None:
+        return "(blank)"
+    if isinstance(v, CellError):
+        return v.code
+    if isinstance(v, bool):
+        return "TRUE" if v else "FALSE"
+    if isinstance(v, int | float):
+        x = float(v)
+        text = repr(x)
+        for digits in range(6, 18):
+            text = f"{x:.{digits}g}"
+            if not isinstance(other, int | float) or isinstance(other, bool):
+                break
+            if f"{float(other):.{digits}g}" != text:
+                break
+        if "e" not in text and "." not in text and "inf" not in text and "nan" not in text:
+            text += ".0"
+        return text.replace("-", "−")
+    return repr(str(v))
+
+
+_A1 = re.compile(r"^(?:(?:'((?:[^']|'')+)'|([^!']+))!)?\$?([A-Za-z]{1,3})\$?(\d+)$")
+
+
+def verify_formulas(
+    sheets: Mapping[str, list[list[object]]],
+    items: Sequence[tuple[str, int, int, str, object]],
+    *,
+    names: Mapping[str, str] | None = None,
+    rel: float = REL_TOLERANCE,
+) -> list[bool | str]:
+    """Check formulas against the values they should give, with the reader's evaluator.
+
+    ``sheets`` are value grids as for :func:`evaluate_cells` (not modified: the formulas are
+    evaluated on copies); ``items`` are (sheet, row, col, formula, expected) with 0-based
+    row/col where the formula would sit. Returns, per item, True when the formula's value
+    matches ``expected`` (:func:`values_match`), else a message saying what it gives.
+    Formulas of one shape down a column are evaluated in one call on arrays.
+    """
+    grids = {name: [list(r) for r in grid] for name, grid in sheets.items()}
+    targets = [(s, r, c, f) for s, r, c, f, _ in items]
+    got = evaluate_cells(grids, targets, names=names)
+    out: list[bool | str] = []
+    for s, r, c, f, expected in items:
+        value = got.get((s, r, c))
+        if values_match(value, expected, rel):
+            out.append(True)
+            continue
+        formula = f if f.startswith("=") else "=" + f
+        why = f" ({value.reason})" if isinstance(value, CellError) and value.reason else ""
+        out.append(
+            f"{s}!{col_letters(c)}{r + 1}: {formula} gives {show_value(value, expected)}{why}, "
+            f"expected {show_value(expected, value)}"
+        )
+    return out
+
+
+def verify_formula(
+    formula_text: str,
+    cell_values: Mapping[str, object],
+    expected: object,
+    rel: float = REL_TOLERANCE,
+    *,
+    sheet: str = "Sheet1",
+) -> bool | str:
+    """Check one formula: True when it gives ``expected``, else a message.
+
+    ``cell_values`` maps A1 references (``"B2"``, or ``"Data!B2"``/``"'My data'!B2"`` for
+    other sheets) to values (float, str, bool, None, CellError); unqualified ones are on
+    ``sheet``, where the formula is placed below every given cell.
+    """
+    grids: dict[str, list[list[object]]] = {sheet: []}
+    for ref, value in cell_values.items():
+        m = _A1.match(ref.strip())
+        if m is None:
+            raise ValueError(f"not an A1 cell reference: {ref!r}")
+        quoted, bare, letters, digits = m.groups()
+        name = quoted.replace("''", "'") if quoted else (bare or sheet)
+        grid = grids.setdefault(name, [])
+        _put(grid, int(digits) - 1, col_index(letters), value)
+    row = len(grids[sheet])
+    got = verify_formulas(grids, [(sheet, row, 0, formula_text, expected)], rel=rel)[0]
+    return got if got is True else str(got).split(": ", 1)[1]  # no made-up cell address
