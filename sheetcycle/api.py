@@ -93,7 +93,8 @@ def _letter(col: int) -> str:
 
 
 def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspection:
-    book = read_cells(path)
+    # verify=True: every formula is recomputed, so a stale cache is caught and not used
+    book = read_cells(path, verify=True)
     tables: list[Table] = []
     flags: list[Flag] = []
     empty: list[str] = []
@@ -103,6 +104,13 @@ def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspe
         flags.extend(fl)
         if not found:
             empty.append(sheet.name)
+    from sheetcycle.io.stale import formula_error_flags, stale_flags
+
+    # A table cell holding a formula error is flagged once, with the formula and its reason.
+    errors = formula_error_flags(book)
+    errored = {(f.sheet, f.cell) for f in errors}
+    flags = [f for f in flags if not (f.code == "cell-not-number" and (f.sheet, f.cell) in errored)]
+    flags.extend(stale_flags(book) + errors)
     return Inspection(str(path), tables, flags, empty, book.cache_reason, book)
 
 
