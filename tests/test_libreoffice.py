@@ -11,6 +11,7 @@ same in the annotated copy as in the input. If LibreOffice is missing the test f
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import lo
 import pytest
@@ -28,9 +29,24 @@ from golden.make_golden import (
     rich_annotation,
 )
 
-from sheetcycle.io.package import write_annotated
+from sheetcycle.io.package import AddedCell, NewSheet, write_annotated
 
 ORIGINAL_SHEETS = ["Salts", "Ions", "Pivot", "Prefixed"]
+PICTURES_SHEET = "sheetcycle pictures"
+
+
+def _png() -> bytes:
+    import io
+
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(3, 2))
+    FigureCanvasAgg(fig)
+    fig.add_subplot().plot([0, 1, 2], [2, 0, 1])
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=80)
+    return buf.getvalue()
 
 
 def _num(text: str) -> float:
@@ -48,10 +64,11 @@ def exported(tmp_path_factory: pytest.TempPathFactory) -> dict[str, dict[str, li
     src = make_rich(folder / "input.xlsm")
     additions, notes, new_sheets = rich_annotation(probe=True)
     dst = folder / "annotated.xlsm"
-    write_annotated(src, dst, additions=additions, notes=notes, new_sheets=new_sheets)
+    pictures = NewSheet(PICTURES_SHEET, [[AddedCell("picture below")]], images=[(1, 0, _png())])
+    write_annotated(src, dst, additions=additions, notes=notes, new_sheets=[*new_sheets, pictures])
     out = folder / "csv"
     lo.convert_to_csv([src, dst], out)
-    sheets = [*ORIGINAL_SHEETS, REFS_SHEET, FLAGS_SHEET]
+    sheets = [*ORIGINAL_SHEETS, REFS_SHEET, FLAGS_SHEET, PICTURES_SHEET]
     return {
         "input": lo.sheets_csv(out, "input", ORIGINAL_SHEETS),
         "annotated": lo.sheets_csv(out, "annotated", sheets),
@@ -101,3 +118,44 @@ def test_original_cells_export_unchanged(exported: dict, sheet: str) -> None:
             assert got == value, f"{sheet} row {r + 1} col {c + 1}: {value!r} -> {got!r}"
             compared += value != ""
     assert compared > 5  # the comparison saw real content
+
+
+def test_sheet_with_a_picture_opens(exported: dict) -> None:
+    assert exported["annotated"][PICTURES_SHEET][0][0] == "picture below"
+
+
+def test_libreoffice_keeps_the_picture_when_it_saves_a_copy(tmp_path: Path) -> None:
+    """LibreOffice parses the drawing: a copy it saves as .xlsx still holds the PNG."""
+    import os
+    import subprocess
+    import zipfile
+
+    from golden.make_golden import make_plain
+
+    src = make_plain(tmp_path / "in.xlsx", rows=3, cols=2)
+    dst = tmp_path / "pictured.xlsx"
+    png = _png()
+    pictures = NewSheet(PICTURES_SHEET, [[AddedCell("picture below")]], images=[(2, 1, png)])
+    write_annotated(src, dst, new_sheets=[pictures])
+    out = tmp_path / "lo"
+    out.mkdir()
+    prof = tmp_path / "profile"
+    cmd = [
+        lo.soffice(),
+        f"-env:UserInstallation={lo.make_profile(prof)}",
+        "--headless",
+        "--norestore",
+        "--convert-to",
+        "xlsx",
+        "--outdir",
+        str(out),
+        str(dst),
+    ]
+    proc = subprocess.run(
+        cmd, capture_output=True, text=True, timeout=180, env={**os.environ, "HOME": str(prof)}
+    )
+    assert proc.returncode == 0, proc.stderr
+    with zipfile.ZipFile(out / "pictured.xlsx") as z:
+        media = [n for n in z.namelist() if n.startswith("xl/media/")]
+        drawings = [n for n in z.namelist() if n.startswith("xl/drawings/drawing")]
+    assert len(media) == 1 and drawings, z.namelist()

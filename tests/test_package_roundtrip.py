@@ -500,3 +500,114 @@ def test_chunk_boundaries_do_not_matter(
         assert a.namelist() == b.namelist()
         for name in a.namelist():
             assert a.read(name) == b.read(name), name
+
+
+# --- pictures on a new sheet ---------------------------------------------------------------
+
+
+def _png(width_in: float, height_in: float, dpi: int) -> bytes:
+    """A small PNG from matplotlib (it writes a pHYs chunk with the dpi it saved at)."""
+    import io
+
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width_in, height_in))
+    FigureCanvasAgg(fig)
+    fig.add_subplot().plot([0, 1], [1, 0])
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi)
+    return buf.getvalue()
+
+
+@pytest.fixture(scope="module")
+def pictured(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, list[bytes]]:
+    folder = tmp_path_factory.mktemp("pictures")
+    src = make_rich(folder / "golden.xlsm")  # it already holds a stored xl/media/image1.png
+    additions, notes, new_sheets = rich_annotation()
+    pngs = [_png(2.0, 1.0, 100), _png(3.0, 2.0, 72)]
+    pics = NewSheet(
+        "sheetcycle pictures",
+        [[AddedCell("first")], *[[]] * 11, [AddedCell("second")]],
+        images=[(1, 0, pngs[0]), (13, 2, pngs[1])],
+    )
+    dst = folder / "annotated.xlsm"
+    write_annotated(src, dst, additions=additions, notes=notes, new_sheets=[*new_sheets, pics])
+    return src, dst, pngs
+
+
+def test_pictures_become_media_drawing_and_relationships(
+    pictured: tuple[Path, Path, list[bytes]],
+) -> None:
+    src, dst, pngs = pictured
+    xdr = "{http://schemas.openxmlformats.org/drawingml/2006/spreadsheetDrawing}"
+    with zipfile.ZipFile(src) as zi, zipfile.ZipFile(dst) as zo:
+        old = set(zi.namelist())
+        new = sorted(set(zo.namelist()) - old)
+        media = [n for n in new if n.startswith("xl/media/")]
+        assert len(media) == 2 and all(n.endswith(".png") for n in media)
+        assert sorted(zo.read(n) for n in media) == sorted(pngs)  # stored byte for byte
+        # the workbook's own picture is untouched
+        assert zo.read("xl/media/image1.png") == zi.read("xl/media/image1.png")
+        types = zo.read("[Content_Types].xml")
+        assert re.search(rb'Extension="png"[^>]*ContentType="image/png"', types, re.I)
+        assert len(re.findall(rb'Extension="png"', types, re.I)) == 1  # not added twice
+        drawings = [n for n in new if re.fullmatch(r"xl/drawings/drawing\d+\.xml", n)]
+        assert len(drawings) == 1
+        leaf = drawings[0].rsplit("/", 1)[1]
+        sheet_rels = [n for n in new if "worksheets/_rels/" in n and leaf.encode() in zo.read(n)]
+        assert len(sheet_rels) == 1
+        sheet_part = sheet_rels[0].replace("_rels/", "").removesuffix(".rels")
+        assert re.search(rb'<drawing r:id="rId\d+"/></worksheet>', zo.read(sheet_part))
+        root = etree.fromstring(zo.read(drawings[0]))
+        anchors = list(root.iter(xdr + "oneCellAnchor"))
+        assert [
+            (int(a.find(f"{xdr}from/{xdr}row").text), int(a.find(f"{xdr}from/{xdr}col").text))
+            for a in anchors
+        ] == [(1, 0), (13, 2)]
+        # ECMA-376: 914400 EMU per inch; the size is the figure's size in inches, to the
+        # rounding of pHYs, which stores whole pixels per metre (PNG spec §11.3.5.3)
+        exts = [
+            (int(a.find(xdr + "ext").get("cx")), int(a.find(xdr + "ext").get("cy")))
+            for a in anchors
+        ]
+        want = [(2 * 914400, 914400), (3 * 914400, 2 * 914400)]
+        for got, exp in zip(exts, want, strict=True):
+            assert got == pytest.approx(exp, rel=2e-4)
+        # the drawing's relationships point at the new media
+        rels = etree.fromstring(zo.read(f"xl/drawings/_rels/{leaf}.rels"))
+        targets = sorted(
+            str(Path("xl/drawings", e.get("Target"))).replace("xl/drawings/../", "xl/")
+            for e in rels.iter(f"{{{PKG_RELS}}}Relationship")
+        )
+        assert targets == sorted(media)
+
+
+def test_pictures_keep_relationships_and_content_types_consistent(
+    pictured: tuple[Path, Path, list[bytes]],
+) -> None:
+    src, dst, _ = pictured
+    test_relationships_and_content_types_are_consistent((src, dst))
+
+
+def test_pictures_read_back_by_openpyxl(pictured: tuple[Path, Path, list[bytes]]) -> None:
+    """An independent reader (openpyxl with Pillow) finds both pictures at their cells."""
+    _, dst, _ = pictured
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        wb = openpyxl.load_workbook(dst, keep_vba=True)
+    ws = wb["sheetcycle pictures"]
+    found = sorted((img.anchor._from.row, img.anchor._from.col) for img in ws._images)
+    assert found == [(1, 0), (13, 2)]
+    assert ws["A1"].value == "first" and ws["A13"].value == "second"
+
+
+def test_not_a_png_is_refused_and_nothing_written(tmp_path: Path) -> None:
+    src = make_plain(tmp_path / "in.xlsx", rows=3, cols=2)
+    with pytest.raises(WriteError, match="not a PNG"):
+        write_annotated(
+            src,
+            tmp_path / "out.xlsx",
+            new_sheets=[NewSheet("P", [[AddedCell("x")]], images=[(0, 0, b"GIF89a....")])],
+        )
+    assert not (tmp_path / "out.xlsx").exists()

@@ -28,6 +28,16 @@ from pathlib import Path
 from sheetcycle.errors import ReadError, WriteError
 from sheetcycle.io.atomic import atomic_output
 from sheetcycle.io.package_cells import CellStyler, new_sheet_xml
+from sheetcycle.io.package_images import (
+    CT_DRAWING,
+    CT_PNG,
+    T_DRAWING,
+    T_IMAGE,
+    Picture,
+    check_anchor,
+    drawing_xml,
+    png_extent,
+)
 from sheetcycle.io.package_notes import (
     NoteText,
     add_comments,
@@ -152,6 +162,9 @@ class NewSheet:
     rows: Sequence[Sequence[AddedCell | None]]
     col_widths: Sequence[float] = ()
     links: Mapping[tuple[int, int], str] = field(default_factory=dict)  # (row0, col0) -> target
+    # Pictures: (row0, col0, PNG bytes), each anchored by its top-left corner at that cell
+    # and shown at the size its pixels and resolution give (see package_images).
+    images: Sequence[tuple[int, int, bytes]] = ()
 
 
 def _cell_attrs(cell: object) -> tuple[object, str | None, str | None]:
@@ -275,7 +288,11 @@ def _free_part(names: set[str], pattern: str) -> str:
 
 
 def _content_types(
-    data: bytes, overrides: list[tuple[str, str]], drop: list[str], need_vml_default: bool
+    data: bytes,
+    overrides: list[tuple[str, str]],
+    drop: list[str],
+    need_vml_default: bool,
+    defaults: Sequence[tuple[str, str]] = (),
 ) -> bytes:
     data = open_empty(data, b"Types")
     for part in drop:
@@ -291,6 +308,11 @@ def _content_types(
     )
     if need_vml_default and not re.search(rb"Extension\s*=\s*[\"']vml[\"']", data, re.I):
         add = f'<Default Extension="vml" ContentType="{_CT_VML}"/>' + add
+    for ext, ctype in defaults:
+        if not re.search(
+            rb"Extension\s*=\s*[\"']" + re.escape(ext.encode()) + rb"[\"']", data, re.I
+        ):
+            add = f'<Default Extension="{esc_attr(ext)}" ContentType="{esc_attr(ctype)}"/>' + add
     end = data.rfind(b"</Types>")
     return data[:end] + add.encode() + data[end:]
 
@@ -468,7 +490,10 @@ def _plan(
         rid = wb_rel_ids.pop(0)
         new_wb_rels.append((rid, _T_SHEET, relative_target(wb_part, part)))
         overrides.append((part, _CT_SHEET))
-        plan.added[part] = new_sheet_xml(ns.rows, ns.col_widths, ns.links, styler, _cell_attrs)
+        drawing_rid = _plan_images(pkg, plan, ns, part, overrides) if ns.images else None
+        plan.added[part] = new_sheet_xml(
+            ns.rows, ns.col_widths, ns.links, styler, _cell_attrs, drawing_rid
+        )
         any_formula = any_formula or any(
             c is not None and c.formula is not None for row in ns.rows for c in row
         )
@@ -494,11 +519,47 @@ def _plan(
     if new_sheet_els:
         plan.replaced[wb_part] = _add_sheets(wb, new_sheet_els, file)
     vml_new = any(p.lower().endswith(".vml") for p in plan.added)
-    if overrides or drop or vml_new:
+    png_new = [("png", CT_PNG)] if any(p.lower().endswith(".png") for p in plan.added) else []
+    if overrides or drop or vml_new or png_new:
         plan.replaced["[Content_Types].xml"] = _content_types(
-            pkg.need("[Content_Types].xml"), overrides, drop, vml_new
+            pkg.need("[Content_Types].xml"), overrides, drop, vml_new, png_new
         )
     return plan
+
+
+def _plan_images(
+    pkg: _Package, plan: _Plan, ns: NewSheet, part: str, overrides: list[tuple[str, str]]
+) -> str:
+    """Media parts, one drawing part and the relationships for a new sheet's pictures.
+
+    Returns the id of the sheet's relationship to the drawing.
+    """
+    pictures: list[Picture] = []
+    image_rels: list[tuple[str, str, str]] = []
+    drawing = _free_part(pkg.names, "xl/drawings/drawing{}.xml")
+    for k, item in enumerate(ns.images, start=1):
+        if len(item) != 3:
+            raise WriteError(
+                "an image must be (row0, col0, PNG bytes)",
+                file=pkg.file,
+                sheet=ns.name,
+                found=f"{len(item)} items",
+            )
+        row0, col0, data = item
+        check_anchor(row0, col0, sheet=ns.name, file=pkg.file)
+        cx, cy = png_extent(data, sheet=ns.name, file=pkg.file)
+        media = _free_part(pkg.names, "xl/media/image{}.png")
+        plan.added[media] = bytes(data)
+        rid = f"rId{k}"
+        image_rels.append((rid, T_IMAGE, relative_target(drawing, media)))
+        pictures.append(Picture(row0, col0, cx, cy, rid))
+    plan.added[drawing] = drawing_xml(pictures)
+    plan.added[rels_path(drawing)] = add_rels(None, image_rels)
+    overrides.append((drawing, CT_DRAWING))
+    plan.added[rels_path(part)] = add_rels(
+        None, [("rId1", T_DRAWING, relative_target(part, drawing))]
+    )
+    return "rId1"
 
 
 def _strict(file: str) -> WriteError:

@@ -96,8 +96,13 @@ def new_sheet_xml(
     links: Mapping[tuple[int, int], str],
     styler: CellStyler,
     cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
+    drawing_rid: str | None = None,
 ) -> bytes:
-    """A complete worksheet part for a new sheet (no prefix, inline strings)."""
+    """A complete worksheet part for a new sheet (no prefix, inline strings).
+
+    ``drawing_rid`` is the id of the sheet's relationship to its drawing part (pictures),
+    written as ``<drawing>`` after the page margins, where the schema puts it.
+    """
     number_xf = 0
     out: list[str] = [
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
@@ -142,5 +147,7 @@ def new_sheet_xml(
     out.append(
         '<pageMargins left="0.7" right="0.7" top="0.75" bottom="0.75" header="0.3" footer="0.3"/>'
     )
+    if drawing_rid is not None:
+        out.append(f'<drawing r:id="{esc_attr(drawing_rid)}"/>')
     out.append("</worksheet>")
     return "".join(out).encode("utf-8")
