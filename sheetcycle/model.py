@@ -8,6 +8,7 @@ densities in g/cm3, volumes in nm3 per formula unit.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
@@ -131,7 +132,8 @@ class ComputedValue:
 
     def as_dict(self) -> dict[str, Any]:
         def num(x: float) -> float | None:
-            return None if x != x else float(x)  # NaN -> null
+            x = float(x)
+            return x if math.isfinite(x) else None  # NaN, ±inf -> null
 
         return {
             "value": num(self.value),

@@ -17,7 +17,10 @@ import numpy as np
 from sheetcycle.io.atomic import atomic_output, write_error
 from sheetcycle.model import Column, Flag, RowResult, RunResult, Severity, Table
 
-__all__ = ["report_dict", "report_text", "to_json_value", "write_json"]
+__all__ = ["INDENT_ROWS", "report_dict", "report_text", "to_json_value", "write_json"]
+
+#: Reports of more rows than this are written without indentation (about 10x faster).
+INDENT_ROWS = 2000
 
 
 def to_json_value(x: Any) -> Any:
@@ -63,9 +66,10 @@ def _table(t: Table) -> dict[str, Any]:
 
 
 def _row(r: RowResult) -> dict[str, Any]:
+    # already plain: ComputedValue.as_dict turns non-finite numbers into None
     return {
         "sheet": r.sheet,
-        "row": r.row,
+        "row": int(r.row),
         "formula": r.formula,
         "values": {name: v.as_dict() for name, v in r.values.items()},
         "flags": [_flag(f, with_sheet=False) for f in r.flags],
@@ -74,16 +78,20 @@ def _row(r: RowResult) -> dict[str, Any]:
 
 def report_dict(run: RunResult) -> dict[str, Any]:
     """The report as plain JSON-ready values, keys in their documented order."""
-    doc = {
+    head = to_json_value({
         "version": run.version,
         "input": run.input,
         "settings": run.settings,
         "tables": [_table(t) for t in run.tables],
+    })
+    # The rows are most of a big report and are built from plain values already; walking
+    # them again through to_json_value cost more than building them.
+    return {
+        **head,
         "rows": [_row(r) for r in run.rows],
-        "references": [ref.as_dict() for ref in run.references],
+        "references": to_json_value([ref.as_dict() for ref in run.references]),
         "file_flags": [_flag(f, with_sheet=True) for f in run.file_flags],
     }
-    return to_json_value(doc)  # type: ignore[no-any-return]
 
 
 def report_text(run: RunResult) -> str:
@@ -93,10 +101,14 @@ def report_text(run: RunResult) -> str:
 
 def write_json(run: RunResult, path: Path, *, force: bool = False) -> None:
     """Write the report to ``path`` atomically; refuses to overwrite unless ``force``."""
-    text = report_text(run)
+    doc = report_dict(run)
     inputs = [Path(run.input)] if run.input else []
     with atomic_output(Path(path), force=force, inputs=inputs) as tmp:
         try:
-            tmp.write_text(text, encoding="utf-8", newline="\n")
+            # json's C encoder runs only without indentation: a big report is written
+            # compactly (the same JSON), a small one indented for people who open it.
+            indent = 1 if len(run.rows) <= INDENT_ROWS else None
+            text = json.dumps(doc, ensure_ascii=False, indent=indent, allow_nan=False)
+            tmp.write_text(text + "\n", encoding="utf-8", newline="\n")
         except OSError as exc:
             raise write_error(f"cannot write the report ({exc.strerror})", file=str(path)) from exc
