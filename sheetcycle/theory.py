@@ -3,8 +3,9 @@
 For every compound row with assigned ions, gather what the ionic models need (charges and
 counts from the ions; radii from the row's radius columns or Shannon's table; the structure
 type from a structure column or the built-in mapping; r0 from a distance column, the
-density or the radii; the Born exponent from the ions; the formula-unit volume from a molar
-volume, a density or a cell volume and Z), compute the four models of
+density, the row's radius columns, the built-in table of measured lattice constants or
+Shannon's radii, in that order; the Born exponent from the ions; the formula-unit volume
+from a molar volume, a density or a cell volume and Z), compute the four models of
 :mod:`sheetcycle.engine.lattice_models` once over the whole table, and add per row:
 
 * ``kapustinskii``, ``born_lande``, ``born_mayer``, ``volume_based``: U in kJ/mol (0 K,
@@ -27,7 +28,12 @@ from functools import lru_cache
 import numpy as np
 import numpy.typing as npt
 
-from sheetcycle.data.radii import ionic_radius, madelung_constant, structure_of
+from sheetcycle.data.radii import (
+    interionic_distance,
+    ionic_radius,
+    madelung_constant,
+    structure_of,
+)
 from sheetcycle.engine import lattice_models as lm
 from sheetcycle.io.tables import a1
 from sheetcycle.model import Column, ComputedValue, Flag, Severity
@@ -238,33 +244,60 @@ def _molar_mass(ctx: TableContext) -> FloatArray:
 
 def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
                missing: list[set[str]]) -> None:
-    """r0 per row: a distance column, else the density (cubic structures), else the radii."""
+    """r0 per row, the first of: a distance column; the density (cubic structures); the
+    row's own radius columns (both ions); the built-in measured distance (when the row's
+    structure is the tabulated one); the sum of Shannon radii."""
     n = rows.n
     rows.r0 = np.full(n, np.nan)
     rows.r0_how = [""] * n
     rows.r0_src = [[] for _ in range(n)]
     dcol, dvals = _column_values(ctx, "interionic_distance")
     rhocol, rho = _column_values(ctx, "density")
+    ccol, cvals = _column_values(ctx, "radius_cation")
+    acol, avals = _column_values(ctx, "radius_anion")
     names = np.array([s if s is not None else "" for s in rows.structure], dtype=object)
     from_density = lm.r0_from_density(names, molar_mass, rho)
     cn_of = [_COORDINATION.get(s) if s is not None else None for s in rows.structure]
     rc, ra, rsrc = _radii(ctx, rows, cn_of, missing)
     from_radii = lm.r0_from_radii(rc, ra)
     for i in range(n):
-        if rows.structure[i] is None:
+        structure = rows.structure[i]
+        if structure is None:
             continue
+        formula = ctx.rows[i].formula or ""
         if dcol is not None and np.isfinite(dvals[i]) and dvals[i] > 0:
             rows.r0[i] = dvals[i]
             rows.r0_how[i] = "given"
             rows.r0_src[i] = [f"r0 from {_where(ctx, i, dcol)}"]
-        elif rhocol is not None and np.isfinite(from_density[i]):
+            continue
+        if rhocol is not None and np.isfinite(from_density[i]):
             rows.r0[i] = from_density[i]
-            rows.r0_how[i] = f"from the density {rho[i]:g} g/cm3 ({rows.structure[i]} cell)"
+            rows.r0_how[i] = f"from the density {rho[i]:g} g/cm3 ({structure} cell)"
             rows.r0_src[i] = [f"r0 from the density, {_where(ctx, i, rhocol)}", _SRC_MASS]
+            continue
+        own_radii = (ccol is not None and acol is not None and np.isfinite(cvals[i])
+                     and np.isfinite(avals[i]))
+        measured = None if own_radii else _measured(formula, structure)
+        if measured is not None:
+            rows.r0[i] = measured[0]
+            rows.r0_how[i] = ("measured, from the built-in table of room-temperature "
+                              "lattice constants")
+            rows.r0_src[i] = [measured[1]]
         elif np.isfinite(from_radii[i]):
             rows.r0[i] = from_radii[i]
             rows.r0_how[i] = "estimated as r+ + r−"
+            other = None if own_radii else _measured(formula, None)
+            if own_radii:
+                rows.r0_how[i] += " from the row's radius columns"
+            elif other is not None:
+                rows.r0_how[i] += (f"; the built-in measured distance of {formula} is for "
+                                   f"another structure than {structure}")
             rows.r0_src[i] = rsrc[i]
+
+
+@lru_cache(maxsize=1024)
+def _measured(formula: str, structure: str | None) -> tuple[float, str] | None:
+    return interionic_distance(formula, structure)
 
 
 def _volumes(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
@@ -503,9 +536,11 @@ def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArra
     if len(group) > 1 and sum(math.isfinite(models[m][i]) for m in group) == 1:
         why = "the only structure-based model with a value for this row"
     r0_note = ""
-    if chosen in ("born_lande", "born_mayer") and rows.r0_how[i].startswith("estimated"):
-        r0_note = ("; r0 was estimated from ionic radii: the interionic distance or the "
-                   "density gives a firmer comparison")
+    if chosen in ("born_lande", "born_mayer"):
+        r0_note = f"; r0 = {rows.r0[i]:.1f} pm, {rows.r0_how[i]}"
+        if rows.r0_how[i].startswith("estimated"):
+            r0_note += ("; r0 was estimated from ionic radii: the interionic distance or the "
+                        "density gives a firmer comparison")
     flags[i].append(Flag(
         "covalent-character", Severity.WARNING,
         f"the Born-Haber lattice enthalpy ({cycle[i]:.0f} kJ/mol) is {_pct(d)} % above the "

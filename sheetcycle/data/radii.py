@@ -6,6 +6,8 @@
 * ``madelung.csv``: Madelung constants by structure type, in the |z+ z-| / shortest
   cation-anion distance convention (see docs/lattice-models.md), with aliases.
 * ``structures.csv``: structure type of common binary compounds.
+* ``lattice_parameters.csv``: measured room-temperature lattice constants of common binary
+  compounds and the shortest cation-anion distance r0 that follows from them.
 
 Every lookup returns ``(value, source)`` or None when the table has no entry; the source
 text says where the number came from and any fallback that was applied.
@@ -20,6 +22,7 @@ from functools import lru_cache
 from importlib import resources
 
 __all__ = [
+    "interionic_distance",
     "ionic_radius",
     "madelung_constant",
     "structure_of",
@@ -163,3 +166,69 @@ def structure_of(formula: str) -> tuple[str, str] | None:
     if comp is None:
         return None
     return _structures().get(comp)
+
+
+#: How r0 follows from the cell of each structure type (the shortest cation-anion distance).
+_R0_RULE: dict[str, str] = {
+    "rock salt": "r0 = a/2",
+    "caesium chloride": "r0 = √3·a/2",
+    "zinc blende": "r0 = √3·a/4",
+    "fluorite": "r0 = √3·a/4",
+    "antifluorite": "r0 = √3·a/4",
+    "wurtzite": "r0 = min(u·c, √(a²/3 + (1/2 − u)²·c²))",
+    "rutile": "r0 = min(√2·u·a, √(2(1/2 − u)²·a² + c²/4))",
+    "corundum": "r0 from the refined atomic positions",
+}
+
+
+@dataclass(frozen=True, slots=True)
+class _Lattice:
+    structure: str
+    r0_pm: float
+    source: str
+
+
+def _same_structure(a: str, b: str) -> bool:
+    """Whether two structure names (or aliases of the Madelung table) mean the same type."""
+    ma, mb = _madelung().get(_norm(a)), _madelung().get(_norm(b))
+    if ma is not None or mb is not None:
+        return ma == mb
+    return _norm(a) == _norm(b)
+
+
+@lru_cache(maxsize=1)
+def _lattice() -> dict[frozenset[tuple[str, int]], _Lattice]:
+    table: dict[frozenset[tuple[str, int]], _Lattice] = {}
+    for row in _rows("lattice_parameters.csv"):
+        comp = _composition(row["formula"])
+        if comp is None:
+            continue
+        structure = row["structure"]
+        cell = [f"a = {float(row['a_pm']):g} pm"]
+        if row["c_pm"]:
+            cell.append(f"c = {float(row['c_pm']):g} pm")
+        if row["u"]:
+            cell.append(f"u = {float(row['u']):g}")
+        rule = _R0_RULE.get(structure, "r0 as tabulated")
+        text = (f"r0 = {float(row['r0_pm']):.1f} pm of {row['formula']}, measured: {rule}, "
+                f"{', '.join(cell)} ({structure}, {row['temperature']}); {row['source']}; "
+                "built-in table lattice_parameters.csv")
+        table[comp] = _Lattice(structure, float(row["r0_pm"]), text)
+    return table
+
+
+def interionic_distance(formula: str, structure: str | None = None) -> tuple[float, str] | None:
+    """Measured shortest cation-anion distance r0 (pm) of a common binary compound, from its
+    room-temperature lattice constants, as ``(r0_pm, source)``; the formula is plain or Hill
+    ("NaCl" or "ClNa"). With ``structure`` (a name or alias of the Madelung table), None
+    unless the tabulated compound has that structure type: a distance measured in one
+    structure says nothing about another. None when the compound is not in the table."""
+    comp = _composition(formula)
+    if comp is None:
+        return None
+    found = _lattice().get(comp)
+    if found is None:
+        return None
+    if structure is not None and not _same_structure(structure, found.structure):
+        return None
+    return found.r0_pm, found.source
