@@ -45,3 +45,12 @@ def _theory(ctx: TableContext) -> None:
 
 
 TABLE_PASSES.append(_theory)
+
+
+def _reconcile(ctx: WorkbookContext) -> list[RowResult]:
+    from sheetcycle.reconcile_pass import reconcile_pass
+
+    return reconcile_pass(ctx)
+
+
+WORKBOOK_PASSES.append(_reconcile)  # only with Settings.reconcile
