@@ -51,6 +51,8 @@ def _parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--version", action="version", version=f"sheetcycle {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    from sheetcycle.cli_extra import add_annotate_options, add_commands
+
 
     def common(sp: argparse.ArgumentParser) -> None:
         sp.add_argument(
@@ -144,10 +146,12 @@ def _parser() -> argparse.ArgumentParser:
         help="files processed in parallel (default: one process per core)",
     )
     common(a)
+    add_annotate_options(a)
 
     i = sub.add_parser("inspect", help="show which tables, columns and units are recognised")
     i.add_argument("input", metavar="FILE")
     common(i)
+    add_commands(sub)
     return p
 
 
@@ -208,6 +212,7 @@ def _out_suffix(src: Path, args: argparse.Namespace) -> str:
 
 def _annotate(args: argparse.Namespace) -> int:
     from sheetcycle.api import load_reference_file
+    from sheetcycle.cli_extra import progress_for, settings_kwargs
     from sheetcycle.pipeline import Settings
 
     if args.tolerance < 0:
@@ -233,6 +238,7 @@ def _annotate(args: argparse.Namespace) -> int:
         model_spread=args.model_spread,
         hydration_scale=args.hydration_scale,
         temperature=args.temperature,
+        **settings_kwargs(args),
     )
     many = len(paths) > 1
     jobs = [
@@ -244,20 +250,20 @@ def _annotate(args: argparse.Namespace) -> int:
         for src in paths
     ]
     workers = min(len(jobs), args.jobs or os.cpu_count() or 1)
-    if workers > 1:
-        # Files are independent: one process each, results reported in input order.
-        with ProcessPoolExecutor(max_workers=workers) as pool:
-            outcomes = list(
-                pool.map(
-                    _one_file,
-                    jobs,
-                    [settings] * len(jobs),
-                    [args.force] * len(jobs),
-                    [args.results_book] * len(jobs),
-                )
-            )
-    else:
-        outcomes = [_one_file(job, settings, args.force, args.results_book) for job in jobs]
+    outcomes: list[tuple[bool, str]] = []
+    with progress_for(args, len(jobs)) as bar:
+        if workers > 1:
+            # Files are independent: one process each, results reported in input order.
+            with ProcessPoolExecutor(max_workers=workers) as pool:
+                n = len(jobs)
+                for outcome in pool.map(_one_file, jobs, [settings] * n, [args.force] * n,
+                                        [args.results_book] * n):
+                    outcomes.append(outcome)
+                    bar.update()
+        else:
+            for job in jobs:
+                outcomes.append(_one_file(job, settings, args.force, args.results_book))
+                bar.update()
     failed = 0
     for ok, text in outcomes:
         if not ok:
@@ -310,6 +316,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         if args.command == "annotate":
             return _annotate(args)
+        if args.command == "diagram":
+            return int(args.handler(args))
         return _inspect(args)
     except UsageError as exc:
         print(f"sheetcycle: {exc}", file=sys.stderr)

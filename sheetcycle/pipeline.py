@@ -72,6 +72,8 @@ class Settings:
     temperature: float | None = None  # K: report reaction enthalpies also at this temperature
     reconcile: bool = False  # workbook-wide least-squares reconciliation of shared terms
     reconcile_threshold: float = 3.0  # normalised residual above which an input is named
+    diagrams: bool = False  # a sheet of cycle diagrams (flagged and picked rows) in the copy
+    diagram_rows: tuple[tuple[str, int], ...] = ()  # (sheet, row) the user picked
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -89,6 +91,8 @@ class Settings:
             "temperature_K": self.temperature,
             "reconcile": self.reconcile,
             "reconcile_threshold": self.reconcile_threshold,
+            "diagrams": self.diagrams,
+            "diagram_rows": [[sheet, row] for sheet, row in self.diagram_rows],
         }
 
 

@@ -182,6 +182,11 @@ def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
     _plan_notes(run, plan)
     plan.new_sheets.append(NewSheet(METHOD_SHEET, method_rows, col_widths=(22, 26, 8, 16, 14, 90)))
     plan.new_sheets.append(_flags_sheet(run))
+    # --- issue 7: cycle diagrams (only when the run's settings ask for them) ---
+    from sheetcycle.diagrams import diagram_sheet_for_run
+
+    if (diagrams := diagram_sheet_for_run(run)) is not None:
+        plan.new_sheets.append(diagrams)
     return plan
 
 
@@ -338,6 +343,17 @@ def _method_rows(run: RunResult) -> tuple[list[list[AddedCell | None]], int]:
             ),
         ],
         [t("missing values"), t("blank, text and spreadsheet errors are missing, never zero")],
+        [t("ionic models"), t("Kapustinskii, Born-Landé, Born-Mayer and volume-based "
+                              "(Glasser-Jenkins) lattice energies U at 0 K; before comparing "
+                              "with the cycle's ΔH_L(298 K) each is corrected with Jenkins' "
+                              "ion-type term [p(n_M/2 − 2) + q(n_X/2 − 2)]RT (monatomic ions "
+                              "n = 3); the difference column is 100·(cycle − model)/model")],
+        [t("solution"), t("ΔsolH = ΔH_L(dissociation) + Σ ν·ΔhydH(ion); single-ion hydration "
+                          "enthalpies are converted to one scale before they are added")],
+        [t("reconciliation"), t("with reconcile on: every closed cycle adjusted at once by "
+                                "weighted least squares over the shared terms; normalised "
+                                "residuals; serial elimination names the input most likely "
+                                "wrong, at its own cell (docs/reconciliation.md)")],
         [
             t("formulas"),
             t(
