@@ -74,6 +74,7 @@ class Settings:
     reconcile_threshold: float = 3.0  # normalised residual above which an input is named
     diagrams: bool = False  # a sheet of cycle diagrams (flagged and picked rows) in the copy
     diagram_rows: tuple[tuple[str, int], ...] = ()  # (sheet, row) the user picked
+    functions_as_values: bool = False  # our worksheet functions replaced by values in the copy
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -93,6 +94,7 @@ class Settings:
             "reconcile_threshold": self.reconcile_threshold,
             "diagrams": self.diagrams,
             "diagram_rows": [[sheet, row] for sheet, row in self.diagram_rows],
+            "functions_as_values": self.functions_as_values,
         }
 
 
