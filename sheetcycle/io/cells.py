@@ -29,6 +29,7 @@ from sheetcycle.errors import ReadError
 from sheetcycle.io.evaluate import CIRCULAR, CellError, col_index, evaluate_cells
 from sheetcycle.io.evaluate import _Shifter as Shifter
 from sheetcycle.io.safety import (
+    OPTIONS,
     Limits,
     check_xml_head,
     check_zip,
@@ -127,6 +128,9 @@ _ERRORS = {
     )
 }
 _EPOCH = dt.datetime(1899, 12, 30)
+#: The size of a worksheet (ECMA-376 allows rows 1..1,048,576 and columns A..XFD).
+MAX_ROWS = 1_048_576
+MAX_COLS = 16_384
 
 # Applications that calculate a workbook before saving it, so their cached values match
 # the formulas (docProps/app.xml <Application>). Compared case-insensitively by prefix.
@@ -177,6 +181,14 @@ def read_cells(
             fmt = "xls"  # a legacy binary workbook with a new-style name
     if fmt == "csv":
         return _read_csv(p, limits)
+    if fmt == "ods" and head.startswith(b"PK"):
+        try:
+            with zipfile.ZipFile(p) as zf:
+                check_zip(file, zf, limits)
+        except zipfile.BadZipFile as exc:
+            raise ReadError(
+                "is damaged or truncated (its zip structure is broken)", file=file
+            ) from exc
     if fmt in ("xls", "ods"):
         return _read_calamine(p, fmt)
     try:
@@ -186,6 +198,12 @@ def read_cells(
     except ReadError:
         raise
     except zipfile.BadZipFile as exc:
+        if "for file" in str(exc):  # a member that does not unpack to what its headers say
+            raise ReadError(
+                f"is damaged or truncated ({exc}: the entry does not unpack to what its "
+                "zip headers declare)",
+                file=file,
+            ) from exc
         if head.startswith(b"PK"):
             raise ReadError(
                 "is damaged or truncated (its zip structure is broken)", file=file
@@ -267,6 +285,7 @@ class _XlsxReader:
         self.evaluate = evaluate
         self.verify = verify
         self.names = set(zf.namelist())
+        self.cells_left = limits.max_cells  # grid cells all sheets may still take
 
     # -- package structure ------------------------------------------------------------
     def _xml(self, part: str):
@@ -394,20 +413,25 @@ class _XlsxReader:
                 load_dtd=False,
                 huge_tree=True,
             )
-            for _, el in ctx:
-                tag = el.tag
-                if not tag.endswith("}si") and tag != "si":
-                    continue
-                parts = []
-                for t in el.iter():
-                    if t.tag.endswith("}t") or t.tag == "t":
-                        parent = t.getparent()
-                        if parent is not None and parent.tag.endswith("rPh"):
-                            continue
-                        if t.text:
-                            parts.append(t.text)
-                append(_unx("".join(parts)))
-                el.clear()
+            try:
+                for _, el in ctx:
+                    tag = el.tag
+                    if not isinstance(tag, str) or (not tag.endswith("}si") and tag != "si"):
+                        continue
+                    parts = []
+                    for t in el.iter():
+                        if isinstance(t.tag, str) and (t.tag.endswith("}t") or t.tag == "t"):
+                            parent = t.getparent()
+                            if parent is not None and parent.tag.endswith("rPh"):
+                                continue
+                            if t.text:
+                                parts.append(t.text)
+                    append(_unx("".join(parts)))
+                    el.clear()
+            except etree.XMLSyntaxError as exc:
+                raise ReadError(
+                    f"part {part!r} is not well-formed XML: {exc}", file=self.file
+                ) from exc
         return strings
 
     # -- worksheets ------------------------------------------------------------------
@@ -421,8 +445,10 @@ class _XlsxReader:
             m = re.search(rb"<(\w+:)?worksheet\b", head)
             prefix = (m.group(1) or b"").decode("ascii") if m else ""
             scanner = _Scanner(rows, raw, sst, prefix, self.file, name)
+            scanner.cells_left, scanner.max_cells = self.cells_left, self.limits.max_cells
             for text in _chunks(stream, head, f"</{prefix}row>".encode("ascii")):
                 scanner.feed(text, merged)
+            self.cells_left = scanner.cells_left
         while rows and not rows[-1]:
             rows.pop()
         return SheetCells(name, rows, {}, merged), raw
@@ -612,6 +638,48 @@ class _Scanner:
         self.col = -1  # last 0-based column
         self.digits = b""
         self.row_attrs: bytes | None = None  # attributes of a <row> not yet applied
+        self.cells_left = Limits().max_cells  # grid cells (blanks filled in included)
+        self.max_cells = self.cells_left
+
+    def _grow(self, row: int, col: int) -> None:
+        """Add blank rows up to 0-based ``row`` (which must be on a worksheet)."""
+        rows = self.rows
+        if not 0 <= row < MAX_ROWS:
+            raise self._beyond(row, col)
+        self._spend(row + 1 - len(rows))
+        rows.extend([] for _ in range(row + 1 - len(rows)))
+
+    def _beyond(self, row: int, col: int) -> ReadError:
+        where = f"{_letters(col)}{row + 1}" if 0 <= col < MAX_COLS and row >= 0 else None
+        return ReadError(
+            "has a cell outside the worksheet grid",
+            file=self.file,
+            sheet=self.sheet,
+            cell=where,
+            expected=f"rows 1 to {MAX_ROWS:,} and columns A to XFD ({MAX_COLS:,})",
+            found=f"row {row + 1:,}, column {col + 1:,}",
+        )
+
+    def _spend(self, n: int) -> None:
+        self.cells_left -= n
+        if self.cells_left < 0:
+            raise ReadError(
+                f"has more than {self.max_cells:,} cells (blank cells between filled ones "
+                "included), more than can be read safely "
+                f"(raise it with {OPTIONS['max_cells']} if the file is trusted)",
+                file=self.file,
+                sheet=self.sheet,
+            )
+
+    def _bad_value(self, exc: Exception, row: int, col: int) -> ReadError:
+        where = f"{_letters(col)}{row + 1}" if 0 <= col < MAX_COLS and row >= 0 else None
+        what = "a shared string that does not exist" if isinstance(exc, IndexError) else exc
+        return ReadError(
+            f"has a cell that cannot be read ({what})",
+            file=self.file,
+            sheet=self.sheet,
+            cell=where,
+        )
 
     def feed(self, text: bytes, merged: list[str]) -> None:
         """Scan one piece of sheet XML (ending at a row end) into the grid.
@@ -642,16 +710,23 @@ class _Scanner:
                 self._general(piece)  # some cell carries no reference
                 continue
             row = int(first[1]) - 1
-            values = [
-                float(v) if v and b't="' not in a else value_of(a, v, istr, inner, ll, d)
-                for ll, d, a, v, istr, inner in cells
-            ]
+            try:
+                values = [
+                    float(v) if v and b't="' not in a else value_of(a, v, istr, inner, ll, d)
+                    for ll, d, a, v, istr, inner in cells
+                ]
+            except (ValueError, IndexError) as exc:
+                self._general(piece)  # finds the cell and names it in the error
+                raise self._bad_value(exc, row, -1) from exc
             try:
                 dense = first[0] == b"A" and cols[cells[-1][0]] == len(cells) - 1
             except KeyError:
                 dense = False
-            while len(rows) <= row:
-                rows.append([])
+            if len(rows) <= row:
+                self._grow(row, 0)
+            self.cells_left -= len(cells)
+            if self.cells_left < 0:
+                self._spend(0)
             if dense and not rows[row]:
                 while values and values[-1] is None:
                     values.pop()
@@ -665,6 +740,7 @@ class _Scanner:
                     if c == n:
                         rowlist.append(value)
                     elif c > n:
+                        self._spend(c - n)
                         rowlist.extend([None] * (c - n))
                         rowlist.append(value)
                     else:
@@ -676,7 +752,10 @@ class _Scanner:
     def _colnum(self, letters: bytes) -> int:
         c = self.cols.get(letters)
         if c is None:
-            c = self.cols[letters] = col_index(letters.decode())
+            c = col_index(letters.decode())
+            if c >= MAX_COLS:
+                raise self._beyond(max(self.row, 0), c)
+            self.cols[letters] = c
         return c
 
     def _cell(
@@ -688,7 +767,12 @@ class _Scanner:
         if v:
             i = attrs.index(b' t="') + 4
             t = attrs[i : attrs.index(b'"', i)]
-            return self.sst[int(v)] if t == b"s" else self._typed(t, v, row, col)
+            if t != b"s":
+                return self._typed(t, v, row, col)
+            try:
+                return self.sst[int(v)]
+            except (ValueError, IndexError) as exc:
+                raise self._bad_value(exc, row, col) from exc
         if istr:
             value = istr.decode("utf-8")
             return _unx(_unescape(value)) if "&" in value or "_x" in value else value
@@ -706,6 +790,25 @@ class _Scanner:
         col = self.col
         last_digits = self.digits
         row_attrs = self.row_attrs
+        try:
+            self._general_cells(text, rows, cols, sst, row, rowlist, col, last_digits, row_attrs)
+        except (ValueError, IndexError) as exc:
+            raise self._bad_value(exc, self.row, self.col) from exc
+
+    def _general_cells(
+        self,
+        text: bytes,
+        rows: list[list[object]],
+        cols: dict[bytes, int],
+        sst: list[str],
+        row: int,
+        rowlist: list[object],
+        col: int,
+        last_digits: bytes,
+        row_attrs: bytes | None,
+    ) -> None:
+        """The loop of :meth:`_general`; ``self.row``/``self.col`` follow each cell, so an
+        error names it."""
         for (
             letters,
             digits,
@@ -722,15 +825,16 @@ class _Scanner:
                 if digits != last_digits:
                     last_digits = digits
                     row = int(digits) - 1
-                    while len(rows) <= row:
-                        rows.append([])
+                    if len(rows) <= row or row < 0:
+                        self._grow(row, 0)
                     rowlist = rows[row]
                     row_attrs = None
                 try:
                     c = cols[letters]
                 except KeyError:
-                    c = cols[letters] = col_index(letters.decode())
+                    c = self._colnum(letters)
                 col = c
+                self.row, self.col = row, col
                 if v:
                     if attrs and b' t="' in attrs:
                         i = attrs.index(b' t="') + 4
@@ -766,30 +870,39 @@ class _Scanner:
                         )
                     col = col_index(m.group(1))
                     row = int(m.group(2)) - 1
+                    if col >= MAX_COLS:
+                        raise self._beyond(row, col)
                 else:
                     if row_attrs is not None:
                         r_attr = _attr(row_attrs.decode(), "r")
                         row = int(r_attr) - 1 if r_attr else row + 1
                         row_attrs = None
                     col += 1
+                    if col >= MAX_COLS:
+                        raise self._beyond(row, col)
                 last_digits = b""
-                while len(rows) <= row:
-                    rows.append([])
+                if len(rows) <= row or row < 0:
+                    self._grow(row, col)
                 rowlist = rows[row]
                 c = col
+                self.row, self.col = row, col
                 value = self._slow(row, c, attrs2, inner2)
                 if value is None:
                     continue
             else:
                 continue  # a styled blank <c .../>
             n = len(rowlist)
+            self.cells_left -= 1
             if c == n:
                 rowlist.append(value)
             elif c > n:
+                self._spend(c - n)
                 rowlist.extend([None] * (c - n))
                 rowlist.append(value)
             else:
                 rowlist[c] = value
+            if self.cells_left < 0:
+                self._spend(0)
         self.row, self.col, self.digits, self.row_attrs = row, col, last_digits, row_attrs
 
     def _typed(self, t: bytes, v: bytes, row: int, col: int) -> object:
@@ -969,11 +1082,29 @@ def _read_csv(p: Path, limits: Limits) -> WorkbookCells:
     except csv.Error:
         delimiter = "\t" if p.suffix.lower() == ".tsv" else ","
     rows: list[list[object]] = []
-    for rec in csv.reader(io.StringIO(text, newline=""), delimiter=delimiter):
-        vals: list[object] = [v if v != "" else None for v in rec]
-        while vals and vals[-1] is None:
-            vals.pop()
-        rows.append(vals)
+    cells_left = limits.max_cells
+    old_limit = csv.field_size_limit()
+    csv.field_size_limit(max(old_limit, size + 1))  # one field may be the whole file
+    try:
+        for rec in csv.reader(io.StringIO(text, newline=""), delimiter=delimiter):
+            vals: list[object] = [v if v != "" else None for v in rec]
+            while vals and vals[-1] is None:
+                vals.pop()
+            rows.append(vals)
+            cells_left -= len(vals) + 1
+            if cells_left < 0 or len(rows) > MAX_ROWS:
+                raise ReadError(
+                    f"has more than {limits.max_cells:,} cells or {MAX_ROWS:,} rows, more "
+                    f"than can be read safely (raise it with {OPTIONS['max_cells']} if the "
+                    "file is trusted)",
+                    file=file,
+                )
+    except csv.Error as exc:
+        raise ReadError(
+            f"cannot be read as CSV ({exc})", file=file, cell=f"line {len(rows) + 1}"
+        ) from exc
+    finally:
+        csv.field_size_limit(old_limit)
     while rows and not rows[-1]:
         rows.pop()
     return WorkbookCells(

@@ -18,6 +18,13 @@ Default limits, measured here on sheet XML as xlsxwriter and Excel write it:
   runs at 1000:1 and more.
 * ``max_entries`` = 10,000 parts (a workbook with a few hundred sheets and their
   drawings has well under 2,000).
+* The package as a whole is ratio-checked too, once it unpacks to more than 1 MiB: many
+  members each just under the per-member threshold still add up to a bomb.
+* ``max_cells`` = 50,000,000 grid cells per workbook (a 1,048,576 × 47 sheet), counting the
+  blank cells and rows the reader fills in to reach a far cell: one cell at XFD1048576 in
+  a few bytes of XML would otherwise cost a grid of 17 billion slots.
+
+Each limit names the option that raises it (see docs/limits.md).
 """
 
 from __future__ import annotations
@@ -28,9 +35,10 @@ import zipfile
 from dataclasses import dataclass
 from typing import IO
 
-from sheetcycle.errors import ReadError
+from sheetcycle.errors import ReadError, UsageError
 
 __all__ = [
+    "OPTIONS",
     "RATIO_CHECK_ABOVE",
     "CountingReader",
     "Limits",
@@ -42,16 +50,48 @@ __all__ = [
 ]
 
 RATIO_CHECK_ABOVE = 1024 * 1024  # members smaller than this are not ratio-checked
-_RAISE_HINT = "raise it with --max-unzipped-size if the file is trusted"
+
+#: The command-line option that raises each limit (cli.py maps them onto :class:`Limits`).
+OPTIONS = {
+    "max_entries": "--max-zip-entries",
+    "max_total_uncompressed": "--max-unzipped-size",
+    "max_ratio": "--max-zip-ratio",
+    "max_cells": "--max-cells",
+}
+
+
+def _hint(limit: str) -> str:
+    if limit == "max_ratio":  # a file that expands that much usually needs both raised
+        return (f"raise it with {OPTIONS[limit]} (and {OPTIONS['max_total_uncompressed']}) "
+                "if the file is trusted")
+    return f"raise it with {OPTIONS[limit]} if the file is trusted"
+
+
+_RAISE_HINT = _hint("max_total_uncompressed")
 
 
 @dataclass(frozen=True)
 class Limits:
-    """How much a workbook package may expand before it is refused as unsafe."""
+    """How much a workbook may expand before it is refused as unsafe.
+
+    ``max_entries``: zip members; ``max_total_uncompressed``: bytes of all members
+    together (and of a CSV file); ``max_ratio``: uncompressed/compressed size of any
+    member above 1 MiB and of the whole package; ``max_cells``: grid cells of all sheets
+    together, blanks filled in between cells included.
+    """
 
     max_entries: int = 10_000
     max_total_uncompressed: int = 2 * 1024**3
     max_ratio: float = 100.0
+    max_cells: int = 50_000_000
+
+    def __post_init__(self) -> None:
+        for name in ("max_entries", "max_total_uncompressed", "max_ratio", "max_cells"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, int | float) or not value > 0:
+                raise UsageError(
+                    f"{OPTIONS[name]} must be a positive number", found=value
+                )
 
 
 def _mib(n: int) -> str:
@@ -64,21 +104,23 @@ def check_zip(path: str | os.PathLike[str], zf: zipfile.ZipFile, limits: Limits)
     infos = zf.infolist()
     if len(infos) > limits.max_entries:
         raise ReadError(
-            f"has too many zip entries to be read safely ({_RAISE_HINT})",
+            f"has too many zip entries to be read safely ({_hint('max_entries')})",
             file=file,
             expected=f"at most {limits.max_entries:,} entries",
             found=len(infos),
         )
     total = 0
+    packed = 0
     for info in infos:
         total += info.file_size
+        packed += info.compress_size
         if info.file_size > RATIO_CHECK_ABOVE:
             ratio = info.file_size / max(info.compress_size, 1)
             if ratio > limits.max_ratio:
                 raise ReadError(
                     f"zip entry {info.filename!r} expands {ratio:,.0f}:1 "
                     f"({_mib(info.compress_size)} to {_mib(info.file_size)}); "
-                    f"refused as a possible zip bomb ({_RAISE_HINT})",
+                    f"refused as a possible zip bomb ({_hint('max_ratio')})",
                     file=file,
                     expected=f"at most {limits.max_ratio:g}:1",
                 )
@@ -87,6 +129,14 @@ def check_zip(path: str | os.PathLike[str], zf: zipfile.ZipFile, limits: Limits)
             f"unpacks to {_mib(total)}, more than the limit of "
             f"{_mib(limits.max_total_uncompressed)} ({_RAISE_HINT})",
             file=file,
+        )
+    if total > RATIO_CHECK_ABOVE and total / max(packed, 1) > limits.max_ratio:
+        raise ReadError(
+            f"expands {total / max(packed, 1):,.0f}:1 as a whole ({_mib(packed)} to "
+            f"{_mib(total)} in {len(infos):,} entries); refused as a possible zip bomb "
+            f"({_hint('max_ratio')})",
+            file=file,
+            expected=f"at most {limits.max_ratio:g}:1",
         )
 
 
@@ -144,41 +194,52 @@ def read_member(
     """The whole of one (small) zip member, counted, with its XML prolog checked."""
     with open_member(zf, name, limits, file=file) as stream:
         data = stream.read()
-    check_xml_head(data, name, file=file)
+    check_xml_head(data, name, file=file, whole=True)
     return data
 
 
-def check_xml_head(data: bytes, part: str, *, file: str | None = None) -> None:
+def _unsafe(part: str, why: str, file: str | None) -> ReadError:
+    return ReadError(f"part {part!r} {why}; refused as unsafe", file=file)
+
+
+def check_xml_head(data: bytes, part: str, *, file: str | None = None, whole: bool = False) -> None:
     """Refuse an XML part that declares a document type (DTD) or entities.
 
-    A declaration can only come before the root element, so the prolog is enough.
+    A declaration can only come before the root element, so the prolog is enough: the
+    XML declaration, comments and processing instructions are skipped up to the first
+    other markup. ``data`` is the start of the part; unless it is the ``whole`` part, a
+    prolog that does not end inside it is refused too (a long comment would otherwise hide
+    a declaration from this check).
     """
-    head = data[:4096]
-    # Skip the XML declaration, comments and processing instructions, up to the root tag.
     pos = 0
+    n = len(data)
     while True:
-        lt = head.find(b"<", pos)
-        if lt < 0 or lt + 1 >= len(head):
-            break
-        nxt = head[lt + 1 : lt + 2]
-        if nxt == b"?":
-            pos = lt + 2
-            continue
-        if head.startswith(b"<!--", lt):
-            end = head.find(b"-->", lt)
-            pos = len(head) if end < 0 else end + 3
-            continue
-        if nxt == b"!":
-            raise ReadError(
-                f"part {part!r} contains an XML document type declaration; refused as unsafe",
-                file=file,
-            )
-        break
+        lt = data.find(b"<", pos)
+        if lt < 0:
+            if whole or not data[pos:].strip():
+                # nothing but blanks so far: fine for a whole part (the parser reports an
+                # empty one); for a head, only if the part really ends here
+                if whole or n < 4096:
+                    break
+            raise _unsafe(part, f"has no root element in its first {n:,} bytes", file)
+        if data.startswith(b"<?", lt):
+            end = data.find(b"?>", lt + 2)
+        elif data.startswith(b"<!--", lt):
+            end = data.find(b"-->", lt + 4)
+        elif data.startswith(b"<!", lt):
+            raise _unsafe(part, "contains an XML document type declaration", file)
+        elif lt + 1 >= n and not whole:
+            raise _unsafe(part, f"has no root element in its first {n:,} bytes", file)
+        else:
+            break  # the root element
+        if end < 0:
+            if whole:
+                break  # an unterminated comment: the parser reports it
+            raise _unsafe(part, f"has no root element in its first {n:,} bytes", file)
+        pos = end + 2
+    head = data[:4096]
     if b"<!ENTITY" in head or b"<!DOCTYPE" in head:
-        raise ReadError(
-            f"part {part!r} contains an XML document type declaration; refused as unsafe",
-            file=file,
-        )
+        raise _unsafe(part, "contains an XML document type declaration", file)
 
 
 def safe_parser(*, huge: bool = False):
