@@ -40,6 +40,15 @@ def _reactions(ctx: WorkbookContext) -> list[RowResult]:
 WORKBOOK_PASSES.append(_reactions)
 
 
+def _user_cycles(ctx: WorkbookContext) -> list[RowResult]:
+    from sheetcycle.cycle_pass import cycle_pass
+
+    return cycle_pass(ctx)
+
+
+WORKBOOK_PASSES.append(_user_cycles)
+
+
 def _theory(ctx: TableContext) -> None:
     __import__("sheetcycle.theory").theory.theory_pass(ctx)
 

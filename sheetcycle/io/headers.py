@@ -311,6 +311,23 @@ REGISTRY: tuple[Quantity, ...] = (
         rf"{D} ?rxn ?H{S}",
         r"(?:enthalpy|heat) of reaction|reaction (?:enthalpy|heat)",
     )),
+    # User-defined cycles: a table of steps anchored by a process column. A bare 'ΔH' stays
+    # refused (see REJECTED): the step enthalpy needs its word, 'ΔH (step)' or 'step ΔH'.
+    Quantity("process", "text", "process of a cycle step", _sp(
+        r"(?:cycle )?steps?|process(?:es)?|process step|step (?:process|equation|reaction)",
+    )),
+    Quantity("step_enthalpy", "energy", "enthalpy of a cycle step", _sp(
+        rf"{D} ?H{S} ?\( ?(?:step|process) ?\)|{D} ?H{S} (?:of )?(?:the )?(?:step|process)",
+        rf"(?:step|process) ?{D} ?H{S}",
+        r"(?:step|process) (?:enthalpy|enthalpy change|heat)"
+        r"|(?:enthalpy|enthalpy change|heat) of (?:the )?(?:step|process)",
+    )),
+    Quantity("step_multiplier", "dimensionless", "multiplier of a cycle step", _sp(
+        r"(?:step )?(?:multiplier|factor)|mult\.?|times|×|how many times|number of times",
+    ) + _sp(r"n", case_sensitive=True)),
+    Quantity("cycle_id", "text", "cycle name or number", _sp(
+        r"(?:cycle|loop)(?: ?(?:id|no\.?|number|name|label|#))?",
+    )),
     Quantity("source", "text", "literature reference", _sp(
         r"(?:data )?sources?|references?|refs?\.?|citations?|lit(?:erature)?\.?|doi|bibliography",
     )),
@@ -374,7 +391,7 @@ REJECTED: tuple[tuple[str, str], ...] = (
      "'{h}' says no quantity: name what the column holds (e.g. 'ΔfH°')"),
     (r"[^\W\d_]",
      "'{h}' is a single letter, not a quantity sheetcycle reads (the letters it reads alone "
-     "are T, U and Z)"),
+     "are T, U and Z, and n for the multiplier of a cycle step)"),
 )  # fmt: skip
 
 

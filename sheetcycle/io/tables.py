@@ -49,12 +49,14 @@ TEXT_QUANTITIES = frozenset(
         "element",
         "structure_type",
         "reaction_equation",
+        "process",
+        "cycle_id",
         "source",
         "notes",
     }
 )
 #: Quantities that anchor a table: a header row needs one of them.
-ANCHORS = frozenset({"formula", "element", "reaction_equation"})
+ANCHORS = frozenset({"formula", "element", "reaction_equation", "process"})
 
 #: Internal unit of each kind, as written in outputs.
 INTERNAL_UNIT = {
