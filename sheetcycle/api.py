@@ -47,10 +47,9 @@ class Inspection:
             lines.append(f"  formula values: {self.cache_note}")
         for t in self.tables:
             kind = (
-                "compounds"
-                if t.column("formula")
-                else "reactions"
-                if t.column("reaction_equation")
+                "compounds" if t.column("formula")
+                else "reactions" if t.column("reaction_equation")
+                else "cycle steps" if t.column("process")
                 else "element values"
             )
             units = f", units in row {t.units_row}" if t.units_row else ""

@@ -184,13 +184,18 @@ def _overrides(args: argparse.Namespace):  # type: ignore[no-untyped-def]
 
 
 def _summary(run) -> str:  # type: ignore[no-untyped-def]
-    rows = [r for r in run.rows if r.formula]
+    compound = {(t.sheet, t.first_row + i) for t in run.tables if t.column("formula")
+                for i in range(t.n_rows)}
+    rows = [r for r in run.rows if r.formula and (r.sheet, r.row) in compound]
     lattice = sum(1 for r in rows if "lattice_enthalpy" in r.values)
+    others = sum(1 for r in run.rows if r.formula and (r.sheet, r.row) not in compound)
     counts = {"error": 0, "warning": 0, "note": 0}
     for f in [f for r in run.rows for f in r.flags] + list(run.file_flags):
         counts[f.severity.value] += 1
     return (
-        f"{run.input}: {len(rows)} compounds, {lattice} lattice enthalpies; "
+        f"{run.input}: {len(rows)} compounds, {lattice} lattice enthalpies"
+        + (f", {others} reaction or cycle rows" if others else "")
+        + "; "
         f"{counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes"
     )
 
