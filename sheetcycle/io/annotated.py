@@ -170,9 +170,9 @@ def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
     by_sheet_row = {(r.sheet, r.row): r for r in run.rows}
     sheets = {s.name: s for s in book.sheets}
     for table in run.tables:
-        if (
-            table.column("formula") is None and table.column("reaction_equation") is None
-        ) or table.sheet not in sheets:
+        anchored = any(table.column(q) is not None
+                       for q in ("formula", "reaction_equation", "process"))
+        if not anchored or table.sheet not in sheets:
             continue
         rows = [by_sheet_row.get((table.sheet, table.first_row + i)) for i in range(table.n_rows)]
         addition = _table_columns(table, rows, sheets[table.sheet], refs, plan)
