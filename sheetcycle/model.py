@@ -120,6 +120,15 @@ class Table:
         return None
 
 
+#: One copy of each distinct method text and sources tuple: a big table repeats the same
+#: few hundred of them across its rows, and holding one per row cost most of a run's memory.
+_SHARED: dict[object, object] = {}
+
+
+def _shared(x: object) -> object:
+    return _SHARED.setdefault(x, x)
+
+
 @dataclass(frozen=True, slots=True)
 class ComputedValue:
     """One derived number with everything needed to trace it."""
@@ -129,6 +138,11 @@ class ComputedValue:
     unit: str
     method: str
     sources: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        if len(_SHARED) < 1_000_000:
+            object.__setattr__(self, "method", _shared(self.method))
+            object.__setattr__(self, "sources", _shared(self.sources))
 
     def as_dict(self) -> dict[str, Any]:
         def num(x: float) -> float | None:
