@@ -37,8 +37,8 @@ LAUNCHER = """
 import os, resource, sys
 pid = os.fork()
 if pid == 0:
-    # a runaway case must fail, not take the machine down: 8 GiB of address space
-    resource.setrlimit(resource.RLIMIT_AS, (8 << 30, 8 << 30))
+    # a runaway case must fail, not take the machine down: 4 GiB of address space
+    resource.setrlimit(resource.RLIMIT_AS, (4 << 30, 4 << 30))
     os.execv(sys.executable, [sys.executable, *sys.argv[2:]])
 _, status, usage = os.wait4(pid, 0)
 with open(sys.argv[1], "w") as fh:
