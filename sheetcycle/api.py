@@ -15,7 +15,7 @@ import numpy as np
 from sheetcycle.errors import ReadError, UnitError, UsageError
 from sheetcycle.io.cells import WorkbookCells, read_cells
 from sheetcycle.io.tables import ColumnOverride, find_tables
-from sheetcycle.model import Column, Flag, RefValue, RowResult, RunResult, Table
+from sheetcycle.model import Column, Flag, RefValue, RowResult, RunResult, Severity, Table
 from sheetcycle.pipeline import Settings, TableContext, close_table, run_tables
 from sheetcycle.units import conversion, to_internal
 
@@ -103,6 +103,15 @@ def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspe
         flags.extend(fl)
         if not found:
             empty.append(sheet.name)
+            # A sheet of data without a recognisable table is worth a warning; a sheet of
+            # text (an about or notes sheet) only a note.
+            numbers = any(type(v) is float for row in sheet.rows[:200] for v in row)
+            flags.append(Flag(
+                "no-table", Severity.WARNING if numbers else Severity.NOTE,
+                "no table found on this sheet: a header row needs a formula (or element, "
+                "reaction, step) column and one more recognised column, in the first 30 rows; "
+                "see docs/headers.md, or say what a column holds with --column",
+                sheet.name, "A1"))
     from sheetcycle.io.stale import formula_error_flags, stale_flags
 
     # A table cell holding a formula error is flagged once, with the formula and its reason.

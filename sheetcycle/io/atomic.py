@@ -8,6 +8,8 @@ anything is created.
 
 from __future__ import annotations
 
+import fcntl
+import glob
 import os
 import secrets
 from collections.abc import Iterable, Iterator
@@ -57,8 +59,34 @@ def _check_target(path: Path, *, force: bool, inputs: Iterable[Path]) -> None:
         raise write_error("output folder does not exist", file=str(path), found=str(path.parent))
 
 
+#: Open, locked descriptors of this process's temporary files: the lock tells another run
+#: that the writer is alive; a killed writer's lock is gone with it.
+_LOCKS: dict[Path, int] = {}
+
+
+def _clear_stale(path: Path) -> None:
+    """Remove temporary files of ``path`` that killed runs left behind (their lock is free)."""
+    for old in path.parent.glob(f".{glob.escape(path.stem)}{_TMP_TAG}*{path.suffix}"):
+        try:
+            fd = os.open(old, os.O_RDONLY)
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(fd)  # a live writer holds it
+            continue
+        try:
+            old.unlink()
+        except OSError:
+            pass
+        finally:
+            os.close(fd)
+
+
 def _make_temp(path: Path) -> Path:
     """Create an empty temporary file beside ``path``; its mode follows the umask."""
+    _clear_stale(path)
     for _ in range(8):
         tmp = path.with_name(f".{path.stem}{_TMP_TAG}{secrets.token_hex(6)}{path.suffix}")
         try:
@@ -69,9 +97,19 @@ def _make_temp(path: Path) -> Path:
             raise write_error(
                 f"cannot create a file in the output folder ({exc.strerror})", file=str(path)
             ) from exc
-        os.close(fd)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            _LOCKS[tmp] = fd
+        except OSError:
+            os.close(fd)
         return tmp
     raise write_error("cannot find a free temporary name in the output folder", file=str(path))
+
+
+def _release(tmp: Path) -> None:
+    fd = _LOCKS.pop(tmp, None)
+    if fd is not None:
+        os.close(fd)
 
 
 def _discard(tmp: Path) -> None:
@@ -79,6 +117,8 @@ def _discard(tmp: Path) -> None:
         tmp.unlink()
     except FileNotFoundError:
         pass
+    finally:
+        _release(tmp)
 
 
 @contextmanager
@@ -100,6 +140,7 @@ def atomic_output(path: Path, *, force: bool, inputs: Iterable[Path] = ()) -> It
             raise write_error("output exists; use --force to overwrite", file=str(path))
         try:
             os.replace(tmp, path)
+            _release(tmp)
         except OSError as exc:
             raise write_error(
                 f"cannot move the finished output into place ({exc.strerror})", file=str(path)

@@ -722,6 +722,8 @@ class _Scanner:
                 dense = first[0] == b"A" and cols[cells[-1][0]] == len(cells) - 1
             except KeyError:
                 dense = False
+            if not 0 <= row < MAX_ROWS:
+                raise self._beyond(row, 0)  # row 0 or negative would index from the end
             if len(rows) <= row:
                 self._grow(row, 0)
             self.cells_left -= len(cells)

@@ -21,11 +21,17 @@ master's text only): :func:`shift_formula`.
 from __future__ import annotations
 
 import bisect
+import logging
 import re
 from collections import defaultdict
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+# schedula (under formulas) logs a traceback for a failing function; a failing cell is a
+# flagged value here, and the user must see one plain message, not a traceback.
+for _name in ("schedula", "formulas"):
+    logging.getLogger(_name).setLevel(logging.CRITICAL + 1)
 
 __all__ = [
     "CIRCULAR",

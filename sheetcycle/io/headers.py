@@ -666,6 +666,8 @@ def split_header(text: str) -> tuple[str, str | None]:
     """(label, unit part) of a header; the unit part is None when the header has none."""
     if not isinstance(text, str):
         return "", None
+    if len(text) > MAX_HEADER_LENGTH:
+        return text[:MAX_HEADER_LENGTH], None  # a note or a pasted block, not a header
     try:
         return _split(text)
     except RecursionError:  # pathological nesting: treat as a label without a unit
@@ -681,9 +683,14 @@ _PROVENANCE = re.compile(
 )
 
 
+#: Longer cell texts are never headers (a 10 MB text with slashes would otherwise be cut
+#: and unit-parsed at every slash).
+MAX_HEADER_LENGTH = 256
+
+
 def recognise(text: str) -> HeaderMatch | None:
     """The quantity a header names, or None when it is not recognised (see :func:`explain`)."""
-    if not isinstance(text, str):
+    if not isinstance(text, str) or len(text) > MAX_HEADER_LENGTH:
         return None
     label, unit = split_header(text)
     match = _match_label(label)

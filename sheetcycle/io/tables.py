@@ -291,6 +291,14 @@ def find_tables(
             continue
         quantity = ov.quantity if ov and ov.quantity else (m.quantity if m else None)
         if quantity is None:
+            bad_unit = _label_with_bad_unit(header)
+            if bad_unit is not None:
+                flags.append(Flag(
+                    "unit-unusable", Severity.ERROR,
+                    f"column '{header}': the header names {bad_unit[0]} but its unit "
+                    f"'{bad_unit[1]}' is not one sheetcycle knows; expected an energy per mole "
+                    "such as kJ/mol, kcal/mol or eV; the column was not used",
+                    sheet.name, cell))
             columns.append(Column(header=header, col=c, quantity=None, note=explain(header)))
             continue
         if m is not None and m.uncertainty and not (ov and ov.quantity):
@@ -406,6 +414,7 @@ def find_tables(
         )
 
     columns = _pair_uncertainties(columns, rows, first, n, sheet.name, flags)
+    columns = _drop_duplicates(columns, hr, sheet.name, flags)
     table = Table(
         sheet=sheet.name,
         header_row=hr + 1,
@@ -415,6 +424,45 @@ def find_tables(
         units_row=hr + 2 if units_row else None,
     )
     return [table], flags
+
+
+def _label_with_bad_unit(header: str) -> tuple[str, str] | None:
+    """('the enthalpy of formation', 'bananas') for 'ΔfH° / bananas': a known label with a
+    unit part that is not a unit, which the header reader then does not recognise at all."""
+    for sep in (" / ", "/", " (", " [", ", "):
+        if sep in header:
+            label, _, unit = header.rpartition(sep)
+            unit = unit.strip().rstrip(")]").strip()
+            m = recognise(label.strip()) if label.strip() else None
+            if m is not None and unit and m.kind not in ("text", "dimensionless"):
+                return m.quantity.replace("_", " "), unit
+    return None
+
+
+#: Quantities that may appear in several columns (text the reader keeps, not numbers).
+_REPEATABLE = frozenset({"notes", "source", "uncertainty", "name"})
+
+
+def _drop_duplicates(columns: list[Column], hr: int, sheet: str, flags: list[Flag]) -> list[Column]:
+    """A second column of the same quantity is not used (the first one is), and is flagged."""
+    seen: dict[tuple[str, int], Column] = {}
+    out: list[Column] = []
+    for col in columns:
+        key = (col.quantity or "", col.index)
+        if col.quantity is None or col.quantity in _REPEATABLE or key not in seen:
+            if col.quantity is not None:
+                seen.setdefault(key, col)
+            out.append(col)
+            continue
+        first = seen[key]
+        flags.append(Flag(
+            "column-duplicate", Severity.WARNING,
+            f"column '{col.header}' holds the same quantity ({col.quantity.replace('_', ' ')}) "
+            f"as column {_letter(first.col)} '{first.header}'; only the first one is used",
+            sheet, a1(hr, col.col)))
+        out.append(replace(col, quantity=None, values=None, texts=None,
+                           note=f"duplicate of column {_letter(first.col)}; not used"))
+    return out
 
 
 def _plain(v: object) -> str:

@@ -77,8 +77,6 @@ def test_next_run_works(killed: tuple[Path, Path, float]) -> None:
     assert (out / "big.annotated.xlsx").stat().st_size > 0
 
 
-@pytest.mark.xfail(strict=True, reason="needs fix in sheetcycle/io/atomic.py atomic_output: "
-                   "remove stale temporary files of the same output left by killed runs")
 def test_next_run_clears_stale_temporary_files(killed: tuple[Path, Path, float]) -> None:
     src, out, _ = killed
     if not (out / "big.json").exists():  # test order: make sure a next run has happened
