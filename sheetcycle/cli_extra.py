@@ -46,7 +46,8 @@ def add_commands(sub: Any) -> None:
 
 
 def add_annotate_options(parser: argparse.ArgumentParser) -> None:
-    """Options of ``annotate``: --diagrams, --reconcile, --reconcile-threshold."""
+    """Options of ``annotate``: --diagrams, --reconcile, --reconcile-threshold,
+    --functions-as-values."""
     parser.add_argument(
         "--diagrams", nargs="*", type=_row_spec, default=None, metavar="SHEET!ROW",
         help="add a sheet of cycle diagrams to the annotated copy: one per flagged row and "
@@ -59,6 +60,12 @@ def add_annotate_options(parser: argparse.ArgumentParser) -> None:
         "--reconcile-threshold", type=float, default=3.0, metavar="Z",
         help="normalised residual above which an input is named (default 3; raised for "
              "many inputs so that a consistent workbook is left alone 95 %% of the time)")
+    parser.add_argument(
+        "--functions-as-values", action="store_true",
+        help="in the annotated copy, replace every cell that uses a sheetcycle worksheet "
+             "function (LATTICEH, LATTICEU, UNITCONV, RXNH) by its value, with a note on the "
+             "cell that keeps the formula: for colleagues whose spreadsheet application does "
+             "not know these functions (by default the formulas stay, their values cached)")
 
 
 def settings_kwargs(args: argparse.Namespace) -> dict[str, Any]:
@@ -75,6 +82,7 @@ def settings_kwargs(args: argparse.Namespace) -> dict[str, Any]:
         out["diagrams"] = args.diagrams is not None
     if "diagram_rows" in names:
         out["diagram_rows"] = tuple(args.diagrams or ())
+    out["functions_as_values"] = bool(getattr(args, "functions_as_values", False))
     return {k: v for k, v in out.items() if k in names}
 
 

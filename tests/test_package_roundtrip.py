@@ -3,7 +3,8 @@
 Oracles outside the project: the zip format (Python's zipfile: entry bytes, CRC and
 compression method), the worksheet XML as ECMA-376 Part 1 defines it (cells keyed by
 their A1 ``r``), and two independent readers of the output: openpyxl (formulas, notes,
-fills, formats) and python-calamine (the cached values a viewer shows). The expected
+fills, formats) and python-calamine (the cached values a viewer shows); LibreOffice for
+a shared formula group whose master was replaced by a value. The expected
 values are computed in the test from the golden data (tests/golden/make_golden.py).
 """
 
@@ -16,7 +17,9 @@ import warnings
 import zipfile
 from pathlib import Path
 
+import lo
 import openpyxl
+import openpyxl.worksheet.formula
 import pytest
 from golden.make_golden import (
     FLAGS_SHEET,
@@ -35,11 +38,13 @@ from lxml import etree
 from python_calamine import CalamineWorkbook
 
 from sheetcycle.errors import ReadError, WriteError
+from sheetcycle.io.evaluate import CellError
 from sheetcycle.io.package import (
     FILLS,
     AddedCell,
     AddedColumn,
     CellNote,
+    CellValue,
     NewSheet,
     SheetAddition,
     write_annotated,
@@ -611,3 +616,194 @@ def test_not_a_png_is_refused_and_nothing_written(tmp_path: Path) -> None:
             new_sheets=[NewSheet("P", [[AddedCell("x")]], images=[(0, 0, b"GIF89a....")])],
         )
     assert not (tmp_path / "out.xlsx").exists()
+
+
+# --- new values of existing formula cells ---------------------------------------------------
+#
+# Oracles: ECMA-376 Part 1 §18.3.1.4 (c: t="str"/"b"/"e"/"inlineStr", f, v, is) and
+# §18.3.1.40 (f: a shared group's master holds the text and ref, the others only si);
+# openpyxl (reads formulas, expands shared ones) and python-calamine (cached values), and
+# LibreOffice recalculating the shared group on load.
+
+F_COL = 5  # Salts!F holds =B+C+D in every data row (golden)
+
+
+def _updates() -> list[CellValue]:
+    r = SALTS_FIRST_ROW
+    return [
+        CellValue("Salts", f"F{r}", 1.5),  # number: cached, formula kept
+        CellValue("Salts", f"F{r + 1}", "a & b"),  # text: t="str"
+        CellValue("Salts", f"F{r + 2}", True),  # logical: t="b"
+        CellValue("Salts", f"F{r + 3}", CellError("#DIV/0!", "why")),  # error: t="e"
+        CellValue("Salts", f"F{r + 4}", 2.25, replace_formula=True),  # value replaces it
+        CellValue("Salts", f"F{r + 5}", " text <x> ", replace_formula=True),  # inline string
+        CellValue("Prefixed", "C2", 99.0, replace_formula=True),  # master of a shared group
+        CellValue("Prefixed", "C3", 9.0),  # a member that keeps its formula, newly cached
+    ]
+
+
+@pytest.fixture(scope="module")
+def updated(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
+    folder = tmp_path_factory.mktemp("updated")
+    src = make_rich(folder / "golden.xlsm")
+    dst = folder / "updated.xlsm"
+    note = CellNote("Salts", f"F{SALTS_FIRST_ROW + 4}", "held a formula", "note")
+    write_annotated(src, dst, notes=[note], cell_values=_updates())
+    return src, dst
+
+
+def _part(path: Path, part: str) -> bytes:
+    with zipfile.ZipFile(path) as z:
+        return z.read(part)
+
+
+def test_cell_values_leave_every_other_cell_byte_identical(updated: tuple[Path, Path]) -> None:
+    src, dst = updated
+    changed = {(u.sheet, u.cell) for u in _updates()} | {("Prefixed", "C3")}
+    for sheet, part in SHEET_PARTS.items():
+        before, after = _raw_cells(_part(src, part)), _raw_cells(_part(dst, part))
+        assert set(before) == set(after), sheet
+        for ref, raw in before.items():
+            if (sheet, ref) in changed:
+                assert after[ref] != raw, f"{sheet}!{ref} not changed"
+            else:
+                assert after[ref] == raw, f"{sheet}!{ref} changed"
+    # Ions had nothing asked of it: its part is copied as it was
+    assert _part(src, SHEET_PARTS["Ions"]) == _part(dst, SHEET_PARTS["Ions"])
+
+
+def test_cached_values_keep_the_formula_element_exactly(updated: tuple[Path, Path]) -> None:
+    src, dst = updated
+    before = _raw_cells(_part(src, SHEET_PARTS["Salts"]))
+    after = _raw_cells(_part(dst, SHEET_PARTS["Salts"]))
+    r = SALTS_FIRST_ROW
+
+    def f_el(raw: bytes) -> bytes:
+        return re.search(rb"<f>.*?</f>", raw).group()
+
+    expect = {
+        r: (None, b"<v>1.5</v>"),
+        r + 1: (b"str", b"<v>a &amp; b</v>"),
+        r + 2: (b"b", b"<v>1</v>"),
+        r + 3: (b"e", b"<v>#DIV/0!</v>"),
+    }
+    for row, (t, v) in expect.items():
+        raw = after[f"F{row}"]
+        assert f_el(raw) == f_el(before[f"F{row}"]) == f"<f>B{row}+C{row}+D{row}</f>".encode()
+        got_t = re.search(rb'\st="(\w+)"', raw)
+        assert (got_t.group(1) if got_t else None) == t, raw
+        assert v in raw and raw.count(b"<v>") == 1, raw
+        s_old = re.search(rb'\ss="\d+"', before[f"F{row}"]).group()
+        assert s_old in raw  # the format stays
+    wb, _ = _load(dst, keep_vba=True)
+    ws = wb["Salts"]
+    for row in expect:
+        assert ws.cell(row, F_COL + 1).value == f"=B{row}+C{row}+D{row}"
+    cached = CalamineWorkbook.from_path(str(dst)).get_sheet_by_name("Salts").to_python()
+    assert cached[r - 1][F_COL] == 1.5
+    assert cached[r][F_COL] == "a & b"
+    assert cached[r + 1][F_COL] is True
+
+
+def test_replaced_formulas_become_values_with_their_format(updated: tuple[Path, Path]) -> None:
+    src, dst = updated
+    r = SALTS_FIRST_ROW + 4
+    before = _raw_cells(_part(src, SHEET_PARTS["Salts"]))
+    after = _raw_cells(_part(dst, SHEET_PARTS["Salts"]))
+    assert b"<f" not in after[f"F{r}"] and b"<v>2.25</v>" in after[f"F{r}"]
+    assert b'<is><t xml:space="preserve"> text &lt;x&gt; </t></is>' in after[f"F{r + 1}"]
+    assert b't="inlineStr"' in after[f"F{r + 1}"]
+    assert re.search(rb'\ss="\d+"', after[f"F{r + 1}"]).group() in before[f"F{r + 1}"]
+    old, _ = _load(src, keep_vba=True)
+    new, _ = _load(dst, keep_vba=True)
+    assert new["Salts"].cell(r, F_COL + 1).value == 2.25
+    assert new["Salts"].cell(r + 1, F_COL + 1).value == " text <x> "
+    assert new["Salts"].cell(r + 1, F_COL + 1).number_format == (
+        old["Salts"].cell(r + 1, F_COL + 1).number_format
+    )
+    # the noted cell: a value now, the note's fill on top of its own format
+    cell = new["Salts"].cell(r, F_COL + 1)
+    assert cell.comment is not None and cell.comment.text.endswith("held a formula")
+    assert cell.fill.fgColor.rgb == "FF" + FILLS["note"][1:]
+    assert cell.number_format == old["Salts"].cell(r, F_COL + 1).number_format
+    # formula cells became values: the calculation chain (which lists them) is dropped
+    with zipfile.ZipFile(dst) as z:
+        assert "xl/calcChain.xml" not in z.namelist()
+        assert b"calcChain" not in z.read("[Content_Types].xml")
+
+
+def test_shared_group_gets_a_new_master(updated: tuple[Path, Path], tmp_path: Path) -> None:
+    _, dst = updated
+    xml = _part(dst, SHEET_PARTS["Prefixed"])
+    cells = _raw_cells(xml)
+    assert cells["C2"] == b'<x:c r="C2"><x:v>99.0</x:v></x:c>'
+    # the next cell of the group holds the group's text, shifted to its row, and its range
+    assert b'<x:f t="shared" si="0" ref="C3:C7">B3*2</x:f><x:v>9.0</x:v>' in cells["C3"]
+    for ref in ("C5", "C6", "C7"):
+        assert b'<x:f t="shared" si="0"/>' in cells[ref]
+    wb, _ = _load(dst, keep_vba=True)
+    ws = wb["Prefixed"]
+    assert ws["C2"].value == 99.0
+    # openpyxl expands the shared formula from the new master (row 5's cells carry no r
+    # attribute, which openpyxl does not follow for shared formulas: LibreOffice checks it)
+    for r in (3, 6, 7):
+        assert ws[f"C{r}"].value == f"=B{r}*2"
+    # LibreOffice recalculates the group on load: C = 2·B (golden: B = 1.5·row)
+    lo.soffice()
+    lo.convert_to_csv([dst], tmp_path)
+    rows = lo.sheets_csv(tmp_path, dst.stem, ["Prefixed"])["Prefixed"]
+    by_row = {int(row[0][1:]): row for row in rows[1:] if row and row[0].startswith("L")}
+    assert float(by_row[2][2]) == 99.0
+    for r in (3, 5, 6, 7):
+        assert float(by_row[r][2]) == pytest.approx(2 * 1.5 * r, rel=1e-12)
+
+
+def test_cached_values_only_keep_the_calculation_chain(tmp_path: Path) -> None:
+    src = make_rich(tmp_path / "golden.xlsm")
+    dst = tmp_path / "cached.xlsm"
+    write_annotated(src, dst, cell_values=[CellValue("Salts", f"F{SALTS_FIRST_ROW}", 3.0)])
+    with zipfile.ZipFile(src) as zi, zipfile.ZipFile(dst) as zo:
+        assert zo.read("xl/calcChain.xml") == zi.read("xl/calcChain.xml")
+        changed = {n for n in zi.namelist() if zi.read(n) != zo.read(n)}
+    assert changed == {SHEET_PARTS["Salts"]}
+
+
+@pytest.mark.parametrize(
+    ("update", "why"),
+    [
+        (CellValue("Salts", f"B{SALTS_FIRST_ROW}", 1.0), "holds no formula"),
+        (CellValue("Salts", "Q4", 1.0, replace_formula=True), "no such cell"),
+        (CellValue("Salts", "A900", 1.0), "does not exist"),
+        (CellValue("Salts", "F4", object()), "must be a number"),
+        (CellValue("Nowhere", "A1", 1.0), "no worksheet"),
+        (CellValue("Salts", "F", 1.0), "A1 cell reference"),
+    ],
+)
+def test_refused_cell_values_write_nothing(tmp_path: Path, update: CellValue, why: str) -> None:
+    src = make_rich(tmp_path / "golden.xlsm")
+    dst = tmp_path / "out.xlsm"
+    with pytest.raises(WriteError, match=why):
+        write_annotated(src, dst, cell_values=[update])
+    assert not dst.exists()
+    assert list(tmp_path.iterdir()) == [src]
+
+
+def test_refuses_two_values_for_one_cell_and_array_masters(tmp_path: Path) -> None:
+    src = make_rich(tmp_path / "golden.xlsm")
+    twice = [CellValue("Salts", "F4", 1.0), CellValue("Salts", "$F$4", 2.0)]
+    with pytest.raises(WriteError, match="two new values"):
+        write_annotated(src, tmp_path / "a.xlsm", cell_values=twice)
+    # a multi-cell array formula (openpyxl writes <f t="array" ref="A2:A3">)
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Data"
+    ws["B2"], ws["B3"] = 1, 2
+    ws["A2"] = openpyxl.worksheet.formula.ArrayFormula("A2:A3", "=B2:B3*2")
+    arr = tmp_path / "array.xlsx"
+    wb.save(arr)
+    with pytest.raises(WriteError, match="array formula"):
+        write_annotated(arr, tmp_path / "b.xlsx", cell_values=[CellValue("Data", "A2", 2.0, True)])
+    write_annotated(arr, tmp_path / "c.xlsx", cell_values=[CellValue("Data", "A2", 2.0)])
+    got = openpyxl.load_workbook(tmp_path / "c.xlsx")["Data"]["A2"].value
+    assert got.ref == "A2:A3" and got.text == "=B2:B3*2"
+    assert not (tmp_path / "a.xlsm").exists() and not (tmp_path / "b.xlsx").exists()

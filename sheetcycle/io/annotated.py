@@ -31,6 +31,7 @@ from sheetcycle.io.package import (
     AddedCell,
     AddedColumn,
     CellNote,
+    CellValue,  # issue 5: cells that use sheetcycle's worksheet functions
     NewSheet,
     SheetAddition,
     write_annotated,
@@ -85,6 +86,9 @@ class AnnotationPlan:
     notes: list[CellNote] = field(default_factory=list)
     new_sheets: list[NewSheet] = field(default_factory=list)
     formulas: list[tuple[str, str, str, float]] = field(default_factory=list)  # sheet, cell, f, v
+    # --- issue 5: existing cells that use sheetcycle's worksheet functions: their values,
+    # cached under the formula, or (functions_as_values) written in place of it ---
+    cell_values: list[CellValue] = field(default_factory=list)
 
 
 def _q(sheet: str) -> str:
@@ -187,7 +191,32 @@ def plan_annotations(run: RunResult, book: WorkbookCells) -> AnnotationPlan:
 
     if (diagrams := diagram_sheet_for_run(run)) is not None:
         plan.new_sheets.append(diagrams)
+    # --- issue 5: values of the cells that use sheetcycle's worksheet functions ---
+    _plan_function_cells(run, book, plan)
     return plan
+
+
+# --- issue 5: cells that use sheetcycle's worksheet functions --------------------------
+
+
+def _plan_function_cells(run: RunResult, book: WorkbookCells, plan: AnnotationPlan) -> None:
+    """Other applications cannot compute these cells: cache the values sheetcycle computed,
+    or, with the ``functions_as_values`` setting, write the values in place of the formulas
+    with a note on each cell that keeps its formula."""
+    from sheetcycle.io.functions import CacheEntry, ValueEntry, cells_to_cache
+
+    if run.settings.get("functions_as_values"):
+        for e in cells_to_cache(book, replace_by_values=True):
+            assert isinstance(e, ValueEntry)
+            plan.cell_values.append(CellValue(e.sheet, e.cell, e.value, replace_formula=True))
+            plan.notes.append(CellNote(e.sheet, e.cell, e.note, "note"))
+        return
+    for c in cells_to_cache(book):
+        assert isinstance(c, CacheEntry)
+        plan.cell_values.append(CellValue(c.sheet, c.cell, c.value))
+
+
+# --- end of issue 5 block ------------------------------------------------------------
 
 
 def _table_columns(
@@ -469,6 +498,7 @@ def write_annotated_copy(
         additions=plan.additions,
         notes=plan.notes,
         new_sheets=plan.new_sheets,
+        cell_values=plan.cell_values,  # issue 5: worksheet-function cells
         force=force,
     )
     return plan

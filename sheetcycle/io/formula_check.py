@@ -1,10 +1,12 @@
 """Check formulas the tool emits against the values the engine computed.
 
-Formulas are grouped by shape: every cell reference is replaced by a placeholder in order
-of first appearance, so the lattice formulas of a whole table (which differ only in their
-row numbers and in which reference-value cells they point at) share one shape. Each shape
-is compiled once with the ``formulas`` package and evaluated on arrays of its inputs, as
-the reader evaluates users' formulas; 100,000 rows cost a few compilations, not 100,000.
+One engine: the formulas are evaluated by :func:`sheetcycle.io.evaluate.evaluate_cells`,
+the evaluator that reads users' formulas (and sheetcycle's own worksheet functions). It
+groups them by shape (the text with every reference abstracted), compiles each shape once
+with the ``formulas`` package and evaluates a whole column of one shape on arrays, so the
+lattice formulas of a 100,000-row table cost a few compilations, not 100,000. Formulas that
+point at other emitted formulas (a closure residual at its lattice cell) are evaluated in
+dependency order; cells the tool adds as plain values are given in ``extra``.
 """
 
 from __future__ import annotations
@@ -12,18 +14,15 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Mapping, Sequence
-from functools import lru_cache
-from typing import Any
 
-import numpy as np
-
-from sheetcycle.io.cells import CellError, WorkbookCells
+from sheetcycle.io.cells import WorkbookCells
 
 __all__ = ["check_formulas", "formula_shape"]
 
 _REF = re.compile(
     r"(?:'((?:[^']|'')+)'|([A-Za-z_][A-Za-z0-9_.]*))?(!)?\$?([A-Z]{1,3})\$?(\d+)(?![\w(])"
 )
+_A1 = re.compile(r"^\$?([A-Z]{1,3})\$?(\d+)$")
 
 
 def _col_index(letters: str) -> int:
@@ -52,47 +51,39 @@ def formula_shape(formula: str, sheet: str) -> tuple[str, list[tuple[str, int, i
     return _REF.sub(sub, formula), refs
 
 
-@lru_cache(maxsize=256)
-def _compiled(template: str) -> Any:
-    import formulas
-
-    return formulas.Parser().ast("=" + template)[1].compile()
-
-
-def _value(
-    grids: Mapping[str, list[list[object]]],
+def _grids(
+    book: WorkbookCells,
     extra: Mapping[tuple[str, int, int], object],
-    key: tuple[str, int, int],
-) -> float:
-    v = extra.get(key, _MISSING)
-    if v is _MISSING:
-        sheet, r, c = key
-        grid = grids.get(sheet)
+    written: set[str],
+) -> dict[str, list[list[object]]]:
+    """Value grids of the book's sheets and the tool's new sheets, with ``extra`` put in.
+
+    Sheets that get values or results (``written``) are copied; the others are the book's
+    own grids, which the evaluator only reads.
+    """
+    grids: dict[str, list[list[object]]] = {}
+    for sheet in book.sheets:
+        rows = sheet.rows
+        grids[sheet.name] = [list(r) for r in rows] if sheet.name in written else rows
+    for (name, r, c), v in extra.items():
+        grid = grids.get(name)
         if grid is None:
-            return math.nan
-        v = grid[r][c] if r < len(grid) and c < len(grid[r]) else None
-    if v is None:
-        return 0.0  # a blank cell is 0 in a spreadsheet formula
+            grid = grids[name] = []
+        while len(grid) <= r:
+            grid.append([])
+        row = grid[r]
+        if len(row) <= c:
+            row.extend([None] * (c + 1 - len(row)))
+        row[c] = v
+    return grids
+
+
+def _as_float(v: object) -> float:
     if isinstance(v, bool):
         return float(v)
-    if isinstance(v, (int, float)):
+    if isinstance(v, int | float):
         return float(v)
-    if isinstance(v, CellError):
-        return math.nan
-    try:
-        return float(str(v).replace("−", "-"))
-    except ValueError:
-        return math.nan
-
-
-_MISSING = object()
-
-
-def _as_float(x: object) -> float:
-    try:
-        return float(x)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        return math.nan  # a spreadsheet error value
+    return math.nan  # an error value, text or blank: no number
 
 
 def check_formulas(
@@ -105,28 +96,26 @@ def check_formulas(
     """Evaluate (sheet, cell, formula, expected) and return the ones that disagree.
 
     ``extra`` gives the values of cells the tool adds itself, keyed by (sheet, row0, col0).
+    A disagreement is (sheet, cell, formula, expected, got), ``got`` NaN when the formula
+    gives an error value or no number.
     """
-    grids = {s.name: s.rows for s in book.sheets}
-    groups: dict[str, list[tuple[int, list[tuple[str, int, int]]]]] = {}
-    for k, (sheet, _cell, formula, _v) in enumerate(formulas_):
-        template, refs = formula_shape(formula, sheet)
-        groups.setdefault(template, []).append((k, refs))
+    from sheetcycle.io.evaluate import evaluate_cells
+
+    if not formulas_:
+        return []
+    targets: list[tuple[str, int, int, str]] = []
+    for sheet, cell, formula, _v in formulas_:
+        m = _A1.match(cell)
+        if m is None:
+            raise ValueError(f"not an A1 cell reference: {cell!r}")
+        targets.append((sheet, int(m.group(2)) - 1, _col_index(m.group(1)), formula))
+    written = {name for name, _, _ in extra} | {t[0] for t in targets}
+    grids = _grids(book, extra, written)
+    got = evaluate_cells(grids, targets)
     problems: list[tuple[str, str, str, float, float]] = []
-    for template, members in groups.items():
-        fn = _compiled(template)
-        n_inputs = len(members[0][1])
-        columns = [
-            np.array([_value(grids, extra, refs[j]) for _, refs in members])
-            for j in range(n_inputs)
-        ]
-        order = [int(name[2:]) - 1 for name in fn.inputs]
-        raw = np.asarray(fn(*[columns[j] for j in order]), dtype=object).reshape(-1)
-        if raw.shape[0] != len(members):
-            raw = np.broadcast_to(raw, (len(members),))
-        out = np.array([_as_float(x) for x in raw])
-        for (k, _), got in zip(members, out, strict=True):
-            sheet, cell, formula, expected = formulas_[k]
-            scale = max(abs(expected), 1.0)
-            if not (abs(got - expected) <= rel * scale):
-                problems.append((sheet, cell, formula, expected, float(got)))
+    for (sheet, cell, formula, expected), (_, r, c, _) in zip(formulas_, targets, strict=True):
+        value = _as_float(got.get((sheet, r, c)))
+        scale = max(abs(expected), 1.0)
+        if not (abs(value - expected) <= rel * scale):
+            problems.append((sheet, cell, formula, expected, value))
     return problems

@@ -5,11 +5,14 @@ and drops what it does not know: shapes, threaded comments, sparklines, VBA ...)
 every zip entry that needs no change is copied as its stored bytes, and the few parts that
 change are edited by splicing bytes:
 
-* the worksheets that get columns or notes (streamed row by row, see package_sheet),
+* the worksheets that get columns, notes or new cell values (streamed row by row, see
+  package_sheet; a formula cell's new cached value, or its formula replaced by the value,
+  see package_update),
 * ``xl/styles.xml`` (formats appended; existing indices unchanged),
 * ``[Content_Types].xml``, ``xl/workbook.xml`` and its relationships (new sheets last),
 * the notes' comments and VML parts (added to the sheet's own parts when it has them),
-* ``xl/calcChain.xml`` is dropped whenever formulas are added (applications rebuild it).
+* ``xl/calcChain.xml`` is dropped whenever formulas are added or replaced by values
+  (applications rebuild it).
 
 Everything that can be checked is checked before the output is opened; a problem found
 while streaming (an added column landing on an occupied cell) aborts the temporary file,
@@ -54,6 +57,7 @@ from sheetcycle.io.package_sheet import (
     scan_tail,
 )
 from sheetcycle.io.package_styles import MINIMAL_STYLES, StyleBook
+from sheetcycle.io.package_update import check_value
 from sheetcycle.io.package_xml import (
     MAX_COL,
     MAX_ROW,
@@ -79,6 +83,7 @@ __all__ = [
     "AddedCell",
     "AddedColumn",
     "CellNote",
+    "CellValue",
     "NewSheet",
     "SheetAddition",
     "write_annotated",
@@ -154,6 +159,24 @@ class CellNote:
     cell: str  # A1
     text: str
     severity: str  # error, warning, note
+
+
+@dataclass(frozen=True, slots=True)
+class CellValue:
+    """A new value for an existing formula cell.
+
+    With ``replace_formula`` False the cell keeps its ``<f>`` exactly and ``value`` becomes
+    its cached value; with True the formula goes and the cell holds ``value`` (a number,
+    text as an inline string, a logical value, or an error), keeping its format. ``value``
+    is a float, int, str, bool, None (no value) or a CellError-like object (anything with
+    a ``code`` such as ``"#N/A"``; a code that is not a spreadsheet error is written as
+    #N/A).
+    """
+
+    sheet: str
+    cell: str  # A1
+    value: object
+    replace_formula: bool = False
 
 
 @dataclass(frozen=True, slots=True)
@@ -322,6 +345,7 @@ def _plan(
     additions: Sequence[SheetAddition],
     notes: Sequence[CellNote],
     new_sheets: Sequence[NewSheet],
+    cell_values: Sequence[CellValue] = (),
 ) -> _Plan:
     file = pkg.file
     plan = _Plan()
@@ -439,6 +463,34 @@ def _plan(
         job.header_rows.setdefault(add.header_row, []).extend(cols)
         n = len(add.columns[0].cells) if add.columns else 0
         job.blocks.append((add.first_row, n, cols))
+
+    # new values of existing formula cells
+    for cv in cell_values:
+        part = sheet_part(cv.sheet)
+        try:
+            row, col = parse_a1(cv.cell)
+        except ValueError as exc:
+            raise WriteError(
+                "cell value's cell is not an A1 cell reference",
+                file=file,
+                sheet=cv.sheet,
+                found=cv.cell,
+            ) from exc
+        problem = check_value(cv.value)
+        if problem is not None:
+            raise WriteError(problem, file=file, sheet=cv.sheet, cell=cv.cell)
+        job = plan.jobs.setdefault(part, SheetJob(sheet=cv.sheet, part=part))
+        row_updates = job.updates.setdefault(row, {})
+        if col in row_updates:
+            raise WriteError(
+                "two new values for one cell",
+                file=file,
+                sheet=cv.sheet,
+                cell=cv.cell,
+                expected="one CellValue per cell",
+            )
+        row_updates[col] = (cv.value, bool(cv.replace_formula))
+        any_formula = any_formula or bool(cv.replace_formula)
 
     # notes
     merged: dict[tuple[str, int, int], tuple[str, list[str]]] = {}
@@ -752,14 +804,17 @@ def write_annotated(
     additions: Sequence[SheetAddition] = (),
     notes: Sequence[CellNote] = (),
     new_sheets: Sequence[NewSheet] = (),
+    cell_values: Sequence[CellValue] = (),
     force: bool = False,
 ) -> None:
-    """Write ``dst``: the workbook ``src`` with the additions, notes and new sheets.
+    """Write ``dst``: the workbook ``src`` with the additions, notes and new sheets, and
+    the new values of existing formula cells (``cell_values``, see :class:`CellValue`).
 
     Raises :class:`WriteError` (nothing written) for inputs that cannot be annotated:
     other file types, encrypted or Strict Open XML workbooks, unknown sheets, taken sheet
-    names, added cells landing on occupied or merged cells, an existing ``dst`` without
-    ``force``; :class:`ReadError` for a damaged package.
+    names, added cells landing on occupied or merged cells, a cell value for a cell that
+    holds no formula (or for the master of a multi-cell array formula, when replaced),
+    an existing ``dst`` without ``force``; :class:`ReadError` for a damaged package.
     """
     src, dst = Path(src), Path(dst)
     _check_kind(src, dst)
@@ -772,7 +827,7 @@ def write_annotated(
             raise WriteError("the package has encrypted zip entries", file=str(src))
         check_zip(src, zin, Limits())
         pkg = _Package(src, zin)
-        plan = _plan(pkg, additions, notes, new_sheets)
+        plan = _plan(pkg, additions, notes, new_sheets, cell_values)
         with atomic_output(dst, force=force, inputs=[src]) as tmp:
             try:
                 _write(pkg, plan, tmp)

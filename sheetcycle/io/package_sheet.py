@@ -1,8 +1,11 @@
-"""Streaming edit of one worksheet part: new cells to the right, fills on noted cells.
+"""Streaming edit of one worksheet part: new cells to the right, fills on noted cells,
+new values of named formula cells.
 
 The sheet XML is read in chunks and written row by row; no DOM is ever built, so a full
 1,048,576-row sheet passes in bounded memory. Existing cells are copied byte for byte;
-the only change to an existing cell is the ``s`` (format) attribute of a noted cell.
+the only changes to existing cells are the ``s`` (format) attribute of a noted cell and
+the cells a cell update names (see package_update: a new cached value under an unchanged
+``<f>``, or the formula replaced by its value).
 New cells are inserted in column order within their ``<row>``; rows that do not exist are
 created in row order. ``spans``, ``<dimension>`` and ``<cols>`` are updated, and a
 ``<legacyDrawing>`` element is added when the notes need a new VML part.
@@ -18,6 +21,7 @@ from typing import IO
 
 from sheetcycle.errors import ReadError, WriteError
 from sheetcycle.io.package_cells import CellStyler, cell_xml
+from sheetcycle.io.package_update import RewriteError, SharedPromotion, rewrite_cell
 from sheetcycle.io.package_xml import (
     _NEEDS_ESCAPE,
     MAIN_NS,
@@ -71,6 +75,8 @@ class SheetJob:
     blocks: list[tuple[int, int, list[ColumnJob]]] = field(default_factory=list)  # first, n, cols
     notes: dict[int, dict[int, str]] = field(default_factory=dict)  # row -> col -> fill rgb
     legacy_rid: str | None = None  # add <legacyDrawing r:id=...> with this id
+    # row -> col -> (value, replace_formula): existing formula cells that get a new value
+    updates: dict[int, dict[int, tuple[object, bool]]] = field(default_factory=dict)
 
     def columns(self) -> list[ColumnJob]:
         out = [c for cols in self.header_rows.values() for c in cols]
@@ -228,10 +234,12 @@ class SheetRewriter:
         self._style_memo: dict[tuple[int, str | None, bool], int] = {}
         self._spans_memo: dict[bytes, bytes] = {}
         self._plain_s: dict[int, str] = {}
+        self._shared = SharedPromotion(b"")  # set again once the prefix is known
         # target rows as sorted, merged half-open intervals [start, end)
         spans = [(r, r + 1) for r in job.header_rows]
         spans += [(first, first + n) for first, n, _ in job.blocks if n]
         spans += [(r, r + 1) for r in job.notes]
+        spans += [(r, r + 1) for r in job.updates]
         spans.sort()
         merged: list[list[int]] = []
         for a, b in spans:
@@ -319,6 +327,8 @@ class SheetRewriter:
     # --- rows ---------------------------------------------------------------------
 
     def new_row(self, r: int) -> bytes:
+        if r in self.job.updates:
+            self._no_cell(r, min(self.job.updates[r]), "the row does not exist")
         adds = self.adds_for(r)
         p = self.p.decode()
         notes = self.job.notes.get(r, {})
@@ -340,7 +350,8 @@ class SheetRewriter:
         tail_pos = body.find(self._ext)
         if tail_pos < 0:
             tail_pos = len(body)
-        cells_needed = bool(notes)
+        updates = self.job.updates.get(r)
+        cells_needed = bool(notes) or bool(updates)
         if found and not cells_needed:
             last = self._last_col(body)
             cells_needed = last is None or last >= found[0][0]
@@ -353,7 +364,9 @@ class SheetRewriter:
             )
         else:
             adds = [(c, x.encode()) for c, x in found]
-            new_body = self._merge(body, tail_pos, adds, notes or {}, r)
+            new_body = self._merge(body, tail_pos, adds, notes or {}, r, updates or {})
+        if self._shared.active(r) and b"si=" in new_body:
+            new_body = self._promote(new_body, r)
         if found:
             attrs = self._spans(attrs, found[0][0], found[-1][0])
         return b"<" + p + b"row" + attrs + b">" + new_body + b"</" + p + b"row>"
@@ -382,6 +395,7 @@ class SheetRewriter:
         adds: list[tuple[int, bytes]],
         notes: dict[int, str],
         r: int,
+        updates: dict[int, tuple[object, bool]],
     ) -> bytes:
         p = self.p
         cells = _scan_cells(body[:tail_pos], p)
@@ -417,15 +431,84 @@ class SheetRewriter:
                 ai += 1
                 pos = end
                 continue
+            if col in updates:
+                out.append(self._update(body[start:end], te - ts, r, col, updates[col], notes))
+                pos = end
+                continue
             if col in notes:
                 tag = body[ts:te]
                 old = attr(tag, b"s")
                 s = self.styler.styles.with_fill(int(old) if old else None, notes[col])
                 out.append(set_attr(tag, b"s", str(s).encode()))
                 pos = te
+        missing = set(updates) - existing
+        if missing:
+            self._no_cell(r, min(missing), "the row has no such cell")
         out.append(body[pos:tail_pos])
         out.extend(x for _, x in adds[ai:])
         out.append(body[tail_pos:])
+        return b"".join(out)
+
+    def _update(
+        self,
+        cell: bytes,
+        tag_len: int,
+        r: int,
+        col: int,
+        update: tuple[object, bool],
+        notes: dict[int, str],
+    ) -> bytes:
+        """One existing formula cell with its new value (and a note's fill)."""
+        value, replace = update
+        s = None
+        if col in notes:
+            old = attr(cell[:tag_len], b"s")
+            s = self.styler.styles.with_fill(int(old) if old else None, notes[col])
+        try:
+            new, group = rewrite_cell(
+                self.p, cell, tag_len, value, replace_formula=replace, s=s, row=r, col=col
+            )
+        except RewriteError as exc:
+            ref = f"{col_letters(col)}{r}"
+            raise WriteError(
+                f"cannot give {ref} a new value: {exc}",
+                file=self.file,
+                sheet=self.job.sheet,
+                cell=ref,
+                expected="an existing formula cell",
+            ) from exc
+        if group is not None:
+            self._shared.add(group)
+        return new
+
+    def _no_cell(self, r: int, col: int, why: str) -> None:
+        ref = f"{col_letters(col)}{r}"
+        raise WriteError(
+            f"cannot give {ref} a new value: {why}",
+            file=self.file,
+            sheet=self.job.sheet,
+            cell=ref,
+            expected="an existing formula cell",
+        )
+
+    def _promote(self, body: bytes, r: int) -> bytes:
+        """A row body whose first cells of waiting shared groups become their masters."""
+        tail_pos = body.find(self._ext)
+        if tail_pos < 0:
+            tail_pos = len(body)
+        out: list[bytes] = []
+        pos = 0
+        for col, ts, te, start, end, has in _scan_cells(body[:tail_pos], self.p):
+            if not has or not self._shared.pending:
+                continue
+            new = self._shared.promote(body[start:end], te - ts, r, col)
+            if new is not None:
+                out.append(body[pos:start])
+                out.append(new)
+                pos = end
+        if not out:
+            return body
+        out.append(body[pos:])
         return b"".join(out)
 
     def _spans(self, attrs: bytes, lo_col: int, hi_col: int) -> bytes:
@@ -462,6 +545,7 @@ class SheetRewriter:
             self._ps = self.p.decode()
             self._root = buf[:65536]
             self._set_patterns()
+            self._shared = SharedPromotion(self.p)
             m = re.search(rb"<" + re.escape(self.p) + rb"sheetData(?=[\s>/])[^>]*?(/?)>", buf)
             if m:
                 break
@@ -500,6 +584,9 @@ class SheetRewriter:
                     self._missing(prev, r, out.append)
                 if self.next_target(r) == r:
                     piece = self.edit_row(attrs, rm.group(2), r)
+                elif self._shared.active(r) and rm.group(2) and b"si=" in rm.group(2):
+                    body = self._promote(rm.group(2), r)
+                    piece = b"<" + p + b"row" + attrs + b">" + body + b"</" + p + b"row>"
                 else:
                     piece = rm.group()
                 out.append(piece)
