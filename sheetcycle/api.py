@@ -14,6 +14,7 @@ import numpy as np
 
 from sheetcycle.errors import ReadError, UnitError, UsageError
 from sheetcycle.io.cells import WorkbookCells, read_cells
+from sheetcycle.io.safety import Limits
 from sheetcycle.io.tables import ColumnOverride, find_tables
 from sheetcycle.model import Column, Flag, RefValue, RowResult, RunResult, Severity, Table
 from sheetcycle.pipeline import Settings, TableContext, close_table, run_tables
@@ -91,9 +92,10 @@ def _letter(col: int) -> str:
     return a1(0, col)[:-1]
 
 
-def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspection:
+def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride],
+                 limits: Limits | None = None) -> Inspection:
     # verify=True: every formula is recomputed, so a stale cache is caught and not used
-    book = read_cells(path, verify=True)
+    book = read_cells(path, verify=True, limits=limits)
     tables: list[Table] = []
     flags: list[Flag] = []
     empty: list[str] = []
@@ -122,13 +124,14 @@ def _read_tables(path: str | Path, overrides: Sequence[ColumnOverride]) -> Inspe
     return Inspection(str(path), tables, flags, empty, book.cache_reason, book)
 
 
-def inspect(path: str | Path, *, column_overrides: Sequence[ColumnOverride] = ()) -> Inspection:
+def inspect(path: str | Path, *, column_overrides: Sequence[ColumnOverride] = (),
+            limits: Limits | None = None) -> Inspection:
     """Recognise the tables and columns of a workbook without computing anything.
 
     >>> report = inspect("workbooks/demo_salts.xlsx")  # doctest: +SKIP
     >>> print(report.as_text())  # doctest: +SKIP
     """
-    return _read_tables(path, column_overrides)
+    return _read_tables(path, column_overrides, limits)
 
 
 def annotate(
@@ -157,7 +160,7 @@ def annotate(
     for target in (output, json_path):
         if target is not None:
             check_output_target(Path(target), force=force, inputs=[Path(path)])
-    found = _read_tables(path, settings.column_overrides)
+    found = _read_tables(path, settings.column_overrides, settings.limits)
     run = run_tables(path, found.tables, settings, list(found.flags))
     if output is not None:
         own = Path(path).suffix.lower() in (".xlsx", ".xlsm") and not results_book

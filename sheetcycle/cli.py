@@ -44,6 +44,30 @@ def _column_spec(text: str):  # type: ignore[no-untyped-def]
     )
 
 
+_UNITS = {"": 1, "b": 1, "kb": 1000, "mb": 1000**2, "gb": 1000**3,
+          "kib": 1024, "mib": 1024**2, "gib": 1024**3}
+
+
+def _size(text: str) -> int:
+    """'1073741824', '500MB' or '4GiB' → bytes."""
+    t = text.strip().lower().replace(" ", "")
+    digits = t.rstrip("abcdefghijklmnopqrstuvwxyz")
+    unit = t[len(digits):]
+    try:
+        return int(float(digits) * _UNITS[unit])
+    except (KeyError, ValueError):
+        raise argparse.ArgumentTypeError(
+            f"expected a size such as 1073741824, 500MB or 4GiB, found {text!r}") from None
+
+
+def _limits(args: argparse.Namespace):  # type: ignore[no-untyped-def]
+    from sheetcycle.io.safety import Limits
+
+    given = {"max_total_uncompressed": args.max_unzipped_size, "max_ratio": args.max_zip_ratio,
+             "max_entries": args.max_zip_entries, "max_cells": args.max_cells}
+    return Limits(**{k: v for k, v in given.items() if v is not None})
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="sheetcycle",
@@ -67,6 +91,15 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument(
             "--columns", metavar="FILE", help="a JSON file of column overrides (see docs/usage.md)"
         )
+        lim = sp.add_argument_group("limits for untrusted files (docs/limits.md)")
+        lim.add_argument("--max-unzipped-size", type=_size, default=None, metavar="SIZE",
+                         help="total unzipped size a workbook may have (e.g. 4GiB; default 2GiB)")
+        lim.add_argument("--max-zip-ratio", type=float, default=None, metavar="R",
+                         help="largest expansion ratio of a zip part (default 100)")
+        lim.add_argument("--max-zip-entries", type=int, default=None, metavar="N",
+                         help="most zip parts a workbook may have (default 10000)")
+        lim.add_argument("--max-cells", type=int, default=None, metavar="N",
+                         help="most grid cells of all sheets together (default 50000000)")
 
     a = sub.add_parser("annotate", help="compute every cycle and write the results")
     a.add_argument(
@@ -243,6 +276,7 @@ def _annotate(args: argparse.Namespace) -> int:
         model_spread=args.model_spread,
         hydration_scale=args.hydration_scale,
         temperature=args.temperature,
+        limits=_limits(args),
         **settings_kwargs(args),
     )
     many = len(paths) > 1
@@ -308,7 +342,7 @@ def _one_file(
 def _inspect(args: argparse.Namespace) -> int:
     from sheetcycle.api import inspect
 
-    print(inspect(args.input, column_overrides=_overrides(args)).as_text())
+    print(inspect(args.input, column_overrides=_overrides(args), limits=_limits(args)).as_text())
     return 0
 
 

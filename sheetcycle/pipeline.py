@@ -37,6 +37,7 @@ from sheetcycle.engine.conventions import (
 )
 from sheetcycle.engine.diagnose import RATIO_SLIPS, ratio_slips, residual_slips
 from sheetcycle.errors import ChemistryError, FormulaSyntaxError
+from sheetcycle.io.safety import Limits
 from sheetcycle.io.tables import ColumnOverride, a1
 from sheetcycle.model import (
     Column,
@@ -75,6 +76,7 @@ class Settings:
     diagrams: bool = False  # a sheet of cycle diagrams (flagged and picked rows) in the copy
     diagram_rows: tuple[tuple[str, int], ...] = ()  # (sheet, row) the user picked
     functions_as_values: bool = False  # our worksheet functions replaced by values in the copy
+    limits: Limits = field(default_factory=Limits)  # how much a file may expand when read
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -95,6 +97,12 @@ class Settings:
             "diagrams": self.diagrams,
             "diagram_rows": [[sheet, row] for sheet, row in self.diagram_rows],
             "functions_as_values": self.functions_as_values,
+            "limits": {
+                "max_zip_entries": self.limits.max_entries,
+                "max_unzipped_bytes": self.limits.max_total_uncompressed,
+                "max_zip_ratio": self.limits.max_ratio,
+                "max_cells": self.limits.max_cells,
+            },
         }
 
 
