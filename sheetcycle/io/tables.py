@@ -27,7 +27,7 @@ from sheetcycle.io.cells import CellError, SheetCells
 from sheetcycle.io.headers import HeaderMatch, explain, recognise, split_header
 from sheetcycle.io.numbers import is_missing_marker, parse_number_text
 from sheetcycle.model import Column, Flag, Severity, Table
-from sheetcycle.units import Conversion, conversion, parse_unit, to_internal
+from sheetcycle.units import INTERNAL_UNIT, Conversion, conversion, parse_unit, to_internal
 
 __all__ = [
     "HEADER_SEARCH_ROWS",
@@ -58,26 +58,9 @@ TEXT_QUANTITIES = frozenset(
 #: Quantities that anchor a table: a header row needs one of them.
 ANCHORS = frozenset({"formula", "element", "reaction_equation", "process"})
 
-#: Internal unit of each kind, as written in outputs.
-INTERNAL_UNIT = {
-    "energy": "kJ/mol",
-    "length": "pm",
-    "density": "g/cm3",
-    "volume": "nm3",
-    "temperature": "K",
-    "heat_capacity": "J/(mol K)",
-    "dimensionless": "",
-}
-#: The unit assumed (with a flag) for a column whose header and units row give none.
-DEFAULT_UNIT = {
-    "energy": "kJ/mol",
-    "length": "pm",
-    "density": "g/cm3",
-    "volume": "nm3",
-    "temperature": "K",
-    "heat_capacity": "J/(mol K)",
-    "dimensionless": "",
-}
+#: The unit assumed (with a flag) for a column whose header and units row give none: the
+#: internal basis of its kind.
+DEFAULT_UNIT = INTERNAL_UNIT
 
 
 @dataclass(frozen=True)
