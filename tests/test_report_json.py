@@ -350,3 +350,19 @@ def test_atomic_missing_folder_is_a_write_error(tmp_path: Path) -> None:
         with atomic_output(tmp_path / "nope" / "out.json", force=False):
             pass
     assert list(tmp_path.iterdir()) == []
+
+
+def test_big_reports_are_streamed_as_the_same_document(tmp_path: Path, monkeypatch) -> None:
+    # A report over INDENT_ROWS rows is written row by row, compactly; it must be the
+    # same JSON document (strict parser of the standard library as the judge).
+    import sheetcycle.io.report_json as rj
+    from sheetcycle.api import annotate
+
+    run = annotate(Path(__file__).parents[1] / "workbooks" / "demo_salts.xlsx")
+    monkeypatch.setattr(rj, "INDENT_ROWS", 0)
+    out = tmp_path / "big.json"
+    rj.write_json(run, out)
+    text = out.read_text(encoding="utf-8")
+    assert "\n " not in text  # compact
+    assert json.loads(text) == rj.report_dict(run)
+    assert list(json.loads(text)) == list(rj.report_dict(run))  # key order kept

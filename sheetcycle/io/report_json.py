@@ -99,16 +99,37 @@ def report_text(run: RunResult) -> str:
     return json.dumps(report_dict(run), ensure_ascii=False, indent=1, allow_nan=False) + "\n"
 
 
+def _stream(run: RunResult, fh: Any) -> None:
+    """The report written piece by piece: the same JSON document as :func:`report_dict`,
+    compact, without ever holding the whole tree or the whole text (a million-row run's
+    report is gigabytes)."""
+    def dump(x: Any) -> str:
+        return json.dumps(x, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+    head = to_json_value({"version": run.version, "input": run.input,
+                          "settings": run.settings,
+                          "tables": [_table(t) for t in run.tables]})
+    fh.write(dump(head)[:-1] + ',"rows":[')
+    for k, r in enumerate(run.rows):
+        fh.write(("," if k else "") + dump(_row(r)))
+    fh.write('],"references":' + dump(to_json_value([ref.as_dict() for ref in run.references])))
+    fh.write(',"file_flags":' + dump([_flag(f, with_sheet=True) for f in run.file_flags]))
+    fh.write("}\n")
+
+
 def write_json(run: RunResult, path: Path, *, force: bool = False) -> None:
-    """Write the report to ``path`` atomically; refuses to overwrite unless ``force``."""
-    doc = report_dict(run)
+    """Write the report to ``path`` atomically; refuses to overwrite unless ``force``.
+
+    Up to INDENT_ROWS rows the report is indented for people who open it; a bigger one is
+    streamed compactly (the same JSON), row by row.
+    """
     inputs = [Path(run.input)] if run.input else []
     with atomic_output(Path(path), force=force, inputs=inputs) as tmp:
         try:
-            # json's C encoder runs only without indentation: a big report is written
-            # compactly (the same JSON), a small one indented for people who open it.
-            indent = 1 if len(run.rows) <= INDENT_ROWS else None
-            text = json.dumps(doc, ensure_ascii=False, indent=indent, allow_nan=False)
-            tmp.write_text(text + "\n", encoding="utf-8", newline="\n")
+            if len(run.rows) <= INDENT_ROWS:
+                tmp.write_text(report_text(run), encoding="utf-8", newline="\n")
+            else:
+                with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+                    _stream(run, fh)
         except OSError as exc:
             raise write_error(f"cannot write the report ({exc.strerror})", file=str(path)) from exc
