@@ -96,9 +96,14 @@ def main() -> None:
     print(f"annotate: exit {code}, {wall:,.1f} s, peak RSS {peak / 1024**2:,.0f} MiB")
     print(text.strip()[-2000:])
     if code == 0 and out.exists():
+        size = out.stat().st_size
+        if size > 512 * 1024**2:
+            # parsing a multi-GB report here would take more memory than the run itself did
+            print(f"report: {size / 1024**2:,.1f} MiB (not parsed here: too big)")
+            return
         data = json.loads(out.read_text(encoding="utf-8"))
         flagged = sum(1 for r in data["rows"] if r["flags"])
-        print(f"report: {out.stat().st_size / 1024**2:,.1f} MiB, {len(data['rows']):,} rows, "
+        print(f"report: {size / 1024**2:,.1f} MiB, {len(data['rows']):,} rows, "
               f"{flagged:,} with flags")
 
 
