@@ -19,7 +19,6 @@ import argparse
 import math
 import re
 import sys
-import time
 import zipfile
 from pathlib import Path
 
@@ -264,9 +263,5 @@ def test_check_formulas_100k_rows_in_a_few_seconds() -> None:
         items.append(("T", f"C{r}", f"B{r}+'ref'!$A${k + 1}-A{r}", float(lat)))
         items.append(("T", f"D{r}", f"C{r}-ABS(A{r})", float(lat - abs(a[i]))))
     extra |= {("T", i + 1, 2): v for i, (_, _, _, v) in enumerate(items[::2])}
-    t0 = time.perf_counter()
     problems = check_formulas(items, _grid_book(rows), extra)
-    elapsed = time.perf_counter() - t0
-    assert problems == []
-    assert elapsed < 20.0, f"{elapsed:.1f} s for {len(items)} formulas"
-    print(f"check_formulas: {len(items)} formulas in {elapsed:.2f} s")
+    assert problems == []  # (its speed is measured in tests/bench, not asserted here)

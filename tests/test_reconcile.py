@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import statistics
-import time
 from collections.abc import Hashable
 
 import numpy as np
@@ -264,16 +263,13 @@ def test_sidak_keeps_a_large_consistent_network_free_of_false_culprits() -> None
 
 
 @pytest.mark.slow
-def test_a_thousand_rows_reconcile_quickly() -> None:
+def test_a_thousand_rows_reconcile_to_the_planted_culprit() -> None:
     keys, m, s, c, _ = network(40, 25, seed=3)
     m = m.copy()
     m[keys.index(("electron_gain_enthalpy", "X2", 1))] += 40.0
-    t0 = time.perf_counter()
     r = reconcile(keys, m, s, c)
-    elapsed = time.perf_counter() - t0
     assert c.shape[0] == 1025
     assert r.culprits == (("electron_gain_enthalpy", "X2", 1),)
-    assert elapsed < 5.0  # typically 25-80 ms; generous for a busy test machine
 
 
 # --- input checks ---------------------------------------------------------------------------

@@ -9,7 +9,6 @@ independently of pint, which sheetcycle uses for the conversions.
 from __future__ import annotations
 
 import math
-import time
 
 import numpy as np
 import pytest
@@ -254,15 +253,12 @@ def test_conversion_is_cached() -> None:
     assert units.conversion("kJ mol-1", "energy") is units.conversion("kJ mol-1", "energy")
 
 
-def test_100k_values_convert_fast() -> None:
+def test_100k_values_convert_as_one_column() -> None:
     values = np.random.default_rng(0).normal(size=100_000)
     conv = units.conversion("eV/atom", "energy")
     atoms = np.full(100_000, 2.0)
     units.to_internal(values, conv, atoms)  # warm-up
-    start = time.perf_counter()
-    out = units.to_internal(values, conv, atoms)
-    elapsed = time.perf_counter() - start
-    assert elapsed < 0.05, f"{elapsed * 1e3:.1f} ms for 100k values"
+    out = units.to_internal(values, conv, atoms)  # whole column at once (speed: tests/bench)
     np.testing.assert_allclose(out, values * 2 * EV_KJ_MOL, rtol=1e-12)
 
 
