@@ -198,6 +198,15 @@ def _cell_attrs(cell: object) -> tuple[object, str | None, str | None]:
 # --- refusing what cannot be annotated --------------------------------------------------
 
 
+def _cell_ref(cell: str, what: str, file: str, sheet: str) -> tuple[int, int]:
+    """parse_a1 of an A1 reference given to the writer, or a WriteError naming it."""
+    try:
+        return parse_a1(cell)
+    except ValueError as exc:
+        raise WriteError(f"{what} is not an A1 cell reference", file=file, sheet=sheet,
+                         found=cell) from exc
+
+
 def _check_kind(src: Path, dst: Path) -> None:
     file = str(src)
     suffix = src.suffix.lower()
@@ -416,15 +425,7 @@ def _plan(
         _check_addition(add, file)
         header_xf = styler.header()
         if add.header_style_cell:
-            try:
-                ref = parse_a1(add.header_style_cell)
-            except ValueError as exc:
-                raise WriteError(
-                    "header_style_cell is not an A1 cell reference",
-                    file=file,
-                    sheet=add.sheet,
-                    found=add.header_style_cell,
-                ) from exc
+            ref = _cell_ref(add.header_style_cell, "header_style_cell", file, add.sheet)
             with pkg.zin.open(part) as fh:
                 found = find_cell_styles(fh, {ref})
             if ref in found:
@@ -467,15 +468,7 @@ def _plan(
     # new values of existing formula cells
     for cv in cell_values:
         part = sheet_part(cv.sheet)
-        try:
-            row, col = parse_a1(cv.cell)
-        except ValueError as exc:
-            raise WriteError(
-                "cell value's cell is not an A1 cell reference",
-                file=file,
-                sheet=cv.sheet,
-                found=cv.cell,
-            ) from exc
+        row, col = _cell_ref(cv.cell, "cell value's cell", file, cv.sheet)
         problem = check_value(cv.value)
         if problem is not None:
             raise WriteError(problem, file=file, sheet=cv.sheet, cell=cv.cell)
@@ -505,15 +498,7 @@ def _plan(
                 found=note.severity,
             )
         sheet_part(note.sheet)
-        try:
-            row, col = parse_a1(note.cell)
-        except ValueError as exc:
-            raise WriteError(
-                "note cell is not an A1 cell reference",
-                file=file,
-                sheet=note.sheet,
-                found=note.cell,
-            ) from exc
+        row, col = _cell_ref(note.cell, "note cell", file, note.sheet)
         key = (note.sheet, row, col)
         sev, texts = merged.get(key, (note.severity, []))
         if _RANK[note.severity] > _RANK[sev]:
