@@ -173,9 +173,10 @@ def element_overrides(table: Table, file_flags: list[Flag]) -> list[tuple[str, s
 
 
 def _convention_flags(
-    col: Column, conv: ColumnConvention, table: Table, file_flags: list[Flag]
+    col: Column, conv: ColumnConvention, table: Table, file_flags: list[Flag], then: str = ""
 ) -> None:
-    """Say, at the header cell, how an electron-gain column's sign convention was decided."""
+    """Say, at the header cell, how a column's sign convention was decided (``then`` adds
+    what follows from it)."""
     cell = a1(table.header_row - 1, col.col)
     if conv.contradicts_header:
         file_flags.append(
@@ -195,7 +196,7 @@ def _convention_flags(
                 "convention-from-signs",
                 Severity.NOTE,
                 f"column '{col.header}' read in the {_conv_words(conv.convention)} convention "
-                "(decided by the signs of its values)",
+                f"(decided by the signs of its values){then}",
                 table.sheet,
                 cell,
             )
@@ -516,6 +517,13 @@ def close_table(
                 Flag(code, severity, message(int(i)), table.sheet, cell_of(col, int(i)))
             )
 
+    def mixed_sign_flags(col: Column, conv: ColumnConvention, consequence: str) -> None:
+        """Cells whose sign differs from the rest of their column (either convention)."""
+        text = (f"{col.header}: this value's sign differs from the rest of the column "
+                f"({_conv_words(conv.convention)} convention){consequence}")
+        col_issue_flags(col, conv.issues == CellIssue.MIXED_SIGN, "sign-mixed",
+                        lambda i: text, Severity.WARNING)
+
     terms: dict[str, _Term] = {}
     # -- atomization of the metal and the non-metal
     terms["atomization_metal"] = _ref_term(
@@ -648,17 +656,7 @@ def close_table(
             continue
         conv = electron_gain_from_column(col.values, col.convention, k)
         _convention_flags(col, conv, table, file_flags)
-        col_issue_flags(
-            col,
-            conv.issues == CellIssue.MIXED_SIGN,
-            "sign-mixed",
-            lambda i, c=col, cv=conv: (
-                f"{c.header}: this value's sign differs from the "
-                f"rest of the column ({_conv_words(cv.convention)} convention); check which "
-                "convention it was copied in"
-            ),
-            Severity.WARNING,
-        )
+        mixed_sign_flags(col, conv, "; check which convention it was copied in")
         mask = q >= k if k == 2 else None
         vals = _check_against_reference(col, conv.values, term.values, table, row_flags, settings)
         # the same conversion as electron_gain_from_column, written as a formula
@@ -677,17 +675,8 @@ def close_table(
     lcol = table.column("lattice_enthalpy") or table.column("lattice_energy")
     if lcol is not None and lcol.values is not None:
         conv = lattice_from_column(lcol.values, lcol.convention)
-        if conv.decided_by == "signs":
-            file_flags.append(
-                Flag(
-                    "convention-from-signs",
-                    Severity.NOTE,
-                    f"column '{lcol.header}' read in the {conv.convention} convention (decided by "
-                    "the signs of its values); results are given in the dissociation convention",
-                    table.sheet,
-                    a1(table.header_row - 1, lcol.col),
-                )
-            )
+        _convention_flags(lcol, conv, table, file_flags,
+                          then="; results are given in the dissociation convention")
         col_issue_flags(
             lcol,
             conv.issues == CellIssue.IMPOSSIBLE,
@@ -699,17 +688,8 @@ def close_table(
             ),
             Severity.ERROR,
         )
-        col_issue_flags(
-            lcol,
-            conv.issues == CellIssue.MIXED_SIGN,
-            "sign-mixed",
-            lambda i, c=lcol, cv=conv: (
-                f"{c.header}: this value's sign differs from the "
-                f"rest of the column ({cv.convention} convention): formation and "
-                "dissociation values seem mixed; its magnitude was used"
-            ),
-            Severity.WARNING,
-        )
+        mixed_sign_flags(lcol, conv, ": formation and dissociation values seem mixed; its "
+                         "magnitude was used")
         lat.fill_from_cells(lcol, conv.values, table, lcol.header, transform="ABS({})")
         if lcol.quantity == "lattice_energy":
             file_flags.append(
