@@ -9,6 +9,7 @@ densities in g/cm3, volumes in nm3 per formula unit.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
@@ -126,23 +127,90 @@ _SHARED: dict[object, object] = {}
 
 
 def _shared(x: object) -> object:
-    return _SHARED.setdefault(x, x)
+    if len(_SHARED) < 100_000:
+        return _SHARED.setdefault(x, x)
+    return x
 
 
-@dataclass(frozen=True, slots=True)
+#: A zero-argument callable that renders ``(method, sources)`` when they are first read.
+Render = Callable[[], tuple[str, tuple[str, ...]]]
+
+
 class ComputedValue:
-    """One derived number with everything needed to trace it."""
+    """One derived number with everything needed to trace it.
+
+    ``method`` and ``sources`` are plain attributes to a reader. A pass that makes one value
+    per row of a large table may hand over a ``render`` callable instead
+    (:meth:`deferred`): the words are then written only when something reads them (the
+    JSON report, the results workbook), not for every row of every run. The annotated copy
+    of a workbook never reads them, and formatting them cost a large share of its run time.
+    """
+
+    __slots__ = ("value", "uncertainty", "unit", "_method", "_sources")
 
     value: float
     uncertainty: float
     unit: str
-    method: str
-    sources: tuple[str, ...] = ()
 
-    def __post_init__(self) -> None:
-        if len(_SHARED) < 1_000_000:
-            object.__setattr__(self, "method", _shared(self.method))
-            object.__setattr__(self, "sources", _shared(self.sources))
+    def __init__(self, value: float, uncertainty: float, unit: str, method: str,
+                 sources: tuple[str, ...] = ()) -> None:
+        _set = object.__setattr__
+        _set(self, "value", value)
+        _set(self, "uncertainty", uncertainty)
+        _set(self, "unit", unit)
+        _set(self, "_method", _shared(method))
+        _set(self, "_sources", _shared(sources))
+
+    @classmethod
+    def deferred(cls, value: float, uncertainty: float, unit: str,
+                 render: Render) -> ComputedValue:
+        """A value whose method text and sources are rendered on first reading."""
+        self = cls.__new__(cls)
+        _set = object.__setattr__
+        _set(self, "value", value)
+        _set(self, "uncertainty", uncertainty)
+        _set(self, "unit", unit)
+        _set(self, "_method", render)
+        _set(self, "_sources", None)
+        return self
+
+    def _render(self) -> None:
+        method, sources = self._method()  # type: ignore[operator]
+        object.__setattr__(self, "_method", _shared(method))
+        object.__setattr__(self, "_sources", _shared(tuple(sources)))
+
+    @property
+    def method(self) -> str:
+        if self._sources is None:
+            self._render()
+        return self._method  # type: ignore[return-value]
+
+    @property
+    def sources(self) -> tuple[str, ...]:
+        if self._sources is None:
+            self._render()
+        return self._sources  # type: ignore[return-value]
+
+    def __setattr__(self, name: str, value: object) -> None:
+        raise AttributeError(f"ComputedValue is immutable (cannot set {name})")
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        # pickled (batch workers, copies) with its words rendered
+        return (ComputedValue, (self.value, self.uncertainty, self.unit, self.method,
+                                self.sources))
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, ComputedValue):
+            return NotImplemented
+        return (self.value, self.uncertainty, self.unit, self.method, self.sources) == (
+            other.value, other.uncertainty, other.unit, other.method, other.sources)
+
+    def __hash__(self) -> int:
+        return hash((self.value, self.uncertainty, self.unit, self.method, self.sources))
+
+    def __repr__(self) -> str:
+        return (f"ComputedValue(value={self.value!r}, uncertainty={self.uncertainty!r}, "
+                f"unit={self.unit!r}, method={self.method!r}, sources={self.sources!r})")
 
     def as_dict(self) -> dict[str, Any]:
         def num(x: float) -> float | None:

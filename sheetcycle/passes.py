@@ -57,6 +57,8 @@ TABLE_PASSES.append(_theory)
 
 
 def _reconcile(ctx: WorkbookContext) -> list[RowResult]:
+    if not ctx.settings.reconcile:
+        return []  # without importing scipy (a second of start-up)
     from sheetcycle.reconcile_pass import reconcile_pass
 
     return reconcile_pass(ctx)

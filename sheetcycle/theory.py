@@ -23,7 +23,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import lru_cache, partial
 
 import numpy as np
 import numpy.typing as npt
@@ -463,6 +463,7 @@ def theory_pass(ctx: TableContext) -> None:
         lowest = np.where(np.isfinite(stack), stack, np.inf).min(axis=0)
         spread_pct = 100.0 * spread / lowest
 
+    pick = _comparison_models(models, diffs)
     fcol = ctx.table.column("formula")
     for i in range(n):
         if not rows.ok[i]:
@@ -479,10 +480,11 @@ def theory_pass(ctx: TableContext) -> None:
             u = float(models[name][i])
             if not math.isfinite(u):
                 continue
-            method, sources = _method(name, rows, i, u, float(corr[i]))
-            rr.values[name] = ComputedValue(u, math.nan, KJ, method, sources)
+            # the words are written when read (JSON, results workbook), not for every row
+            rr.values[name] = ComputedValue.deferred(
+                u, math.nan, KJ, partial(_method, name, rows, i, u, float(corr[i])))
         if math.isfinite(cycle[i]):
-            _compare(ctx, rows, i, models, corr, cycle, diffs, diff_sigma, fcell, flags)
+            _compare(ctx, rows, i, models, corr, cycle, diffs, diff_sigma, fcell, flags, pick)
         if math.isfinite(spread_pct[i]) and spread_pct[i] > ctx.settings.model_spread:
             have = {m: float(models[m][i]) for m in MODELS if math.isfinite(models[m][i])}
             hi = max(have, key=have.__getitem__)
@@ -498,41 +500,64 @@ def theory_pass(ctx: TableContext) -> None:
         rr.flags.extend(flags[i])
 
 
+def _comparison_models(models: dict[str, FloatArray], diffs: dict[str, FloatArray]
+                       ) -> list[tuple[str | None, float, bool]]:
+    """Per row: the model the covalent-character comparison uses (COMPARISON_ORDER: the
+    first group with a value, the higher value within it), the cycle's percent difference
+    from it, and whether it is the only one of a group of several with a value."""
+    n = len(next(iter(models.values())))
+    chosen = np.full(n, -1)
+    alone = np.zeros(n, dtype=bool)
+    names = [m for group in COMPARISON_ORDER for m in group]
+    for group in COMPARISON_ORDER:
+        vals = np.stack([models[m] for m in group])
+        have = np.isfinite(vals)
+        todo = (chosen < 0) & have.any(axis=0)
+        # the first of the highest (max() in group order keeps the first on a tie)
+        best = np.argmax(np.where(have, vals, -np.inf), axis=0)
+        chosen = np.where(todo, names.index(group[0]) + best, chosen)
+        if len(group) > 1:
+            alone |= todo & (have.sum(axis=0) == 1)
+    d = np.full(n, np.nan)
+    for k, m in enumerate(names):
+        d = np.where(chosen == k, diffs[m], d)
+    return [(names[c] if c >= 0 else None, x, a)
+            for c, x, a in zip(chosen.tolist(), d.tolist(), alone.tolist(), strict=True)]
+
+
+def _difference_words(name: str, cycle: float, u: float,
+                      corr: float) -> tuple[str, tuple[str, ...]]:
+    h = u + corr
+    return (f"100·(Born-Haber ΔH_L − {_TITLE[name]} ΔH_L)/{_TITLE[name]} ΔH_L = "
+            f"100·({cycle:.1f} − {h:.1f})/{h:.1f}; the model's U {u:.1f} "
+            f"kJ/mol turned into ΔH_L(298 K) with the Jenkins correction {_signed(corr)} kJ/mol "
+            "(monatomic ions, n = 3); positive: the cycle value lies above the ionic model",
+            (f"{name} (this row)", "lattice_enthalpy (this row)", _SRC_JENKINS))
+
+
 def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArray],
              corr: FloatArray, cycle: FloatArray, diffs: dict[str, FloatArray],
              diff_sigma: dict[str, FloatArray], fcell: str | None,
-             flags: list[list[Flag]]) -> None:
+             flags: list[list[Flag]],
+             pick: Sequence[tuple[str | None, float, bool]]) -> None:
     rr = ctx.rows[i]
     for name in MODELS:
         d = float(diffs[name][i])
         if not math.isfinite(d):
             continue
-        h = float(models[name][i] + corr[i])
-        rr.values[name + DIFFERENCE_SUFFIX] = ComputedValue(
+        rr.values[name + DIFFERENCE_SUFFIX] = ComputedValue.deferred(
             d, float(diff_sigma[name][i]), "%",
-            f"100·(Born-Haber ΔH_L − {_TITLE[name]} ΔH_L)/{_TITLE[name]} ΔH_L = "
-            f"100·({cycle[i]:.1f} − {h:.1f})/{h:.1f}; the model's U {models[name][i]:.1f} "
-            f"kJ/mol turned into ΔH_L(298 K) with the Jenkins correction {_signed(corr[i])} kJ/mol "
-            "(monatomic ions, n = 3); positive: the cycle value lies above the ionic model",
-            (f"{name} (this row)", "lattice_enthalpy (this row)", _SRC_JENKINS))
-    chosen: str | None = None
-    group: tuple[str, ...] = ()
-    for group in COMPARISON_ORDER:
-        have = [m for m in group if math.isfinite(models[m][i])]
-        if have:
-            chosen = max(have, key=lambda m: float(models[m][i]))
-            break
-    if chosen is None:
-        return
-    d = float(diffs[chosen][i])
-    if not d > ctx.settings.covalent_threshold:
+            partial(_difference_words, name, float(cycle[i]), float(models[name][i]),
+                    float(corr[i])))
+    chosen, d, alone = pick[i]
+    if chosen is None or not d > ctx.settings.covalent_threshold:
         return
     h = float(models[chosen][i] + corr[i])
     why = {"born_lande": "the higher of the two structure-based models",
            "born_mayer": "the higher of the two structure-based models",
            "kapustinskii": "no structure-based value for this row",
            "volume_based": "the only model with a value for this row"}[chosen]
-    if len(group) > 1 and sum(math.isfinite(models[m][i]) for m in group) == 1:
+    if alone:
         why = "the only structure-based model with a value for this row"
     r0_note = ""
     if chosen in ("born_lande", "born_mayer"):

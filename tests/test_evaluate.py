@@ -326,3 +326,11 @@ def test_verify_formulas_a_column_at_once() -> None:
     assert bad == [777]
     assert got[777].startswith("S!C778: =A778*4.184-(B778+A778)/2 gives ")
     assert len(grid[0]) == 2  # the caller's grid is left alone
+
+
+def test_column_letters_match_openpyxl() -> None:
+    # reference: openpyxl.utils.get_column_letter (an independent implementation)
+    from sheetcycle.io.tables import a1
+
+    for col in (*range(0, 800), 16_383):
+        assert a1(0, col) == openpyxl.utils.get_column_letter(col + 1) + "1"

@@ -139,6 +139,7 @@ def madelung_constant(structure_name: str) -> tuple[float, str] | None:
 _TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
 
 
+@lru_cache(maxsize=8192)
 def _composition(formula: str) -> frozenset[tuple[str, int]] | None:
     text = formula.strip()
     if not text or _TOKEN.sub("", text):
@@ -159,6 +160,7 @@ def _structures() -> dict[frozenset[tuple[str, int]], tuple[str, str]]:
     return table
 
 
+@lru_cache(maxsize=8192)
 def structure_of(formula: str) -> tuple[str, str] | None:
     """Built-in structure type of a compound given as a plain or Hill formula ("NaCl" or
     "ClNa", "Al2O3" or "Al2O3"); None when the compound is not in the table."""

@@ -317,13 +317,23 @@ def _ion_electrons(symbol: Any, charge: Any, sign: float) -> FloatArray:
     sym = _texts(symbol)
     q = np.abs(_f(charge))
     sym, q = np.broadcast_arrays(sym, q)
-    out = np.full(sym.shape, np.nan)
-    for idx in np.ndindex(sym.shape):
-        s = sym[idx]
-        z = _ATOMIC_NUMBER.get(s.strip()) if isinstance(s, str) else None
-        if z is not None and np.isfinite(q[idx]) and float(q[idx]).is_integer():
-            out[idx] = z + sign * q[idx]
-    return out
+    flat = sym.ravel().tolist()
+    # one lookup per distinct symbol, not per row
+    z_of = {s: (_ATOMIC_NUMBER.get(s.strip()) if isinstance(s, str) else None)
+            for s in set(flat) if isinstance(s, str | None)}
+    z = np.array([np.nan if (k := z_of.get(s) if isinstance(s, str | None) else None) is None
+                  else float(k) for s in flat], dtype=float).reshape(sym.shape)
+    with np.errstate(invalid="ignore"):
+        whole = np.isfinite(q) & (q == np.round(q))
+    return np.where(np.isfinite(z) & whole, z + sign * q, np.nan)
+
+
+#: BORN_EXPONENTS as an array indexed by electron count (NaN where none is listed).
+def _exponent_table() -> FloatArray:
+    table = np.full(max(BORN_EXPONENTS) + 1, np.nan)
+    for electrons, n in BORN_EXPONENTS.items():
+        table[electrons] = n
+    return table
 
 
 def born_exponent_for_ions(
@@ -340,12 +350,11 @@ def born_exponent_for_ions(
     e_a = _ion_electrons(anion_symbol, anion_charge, +1.0)
     e_c, e_a = np.broadcast_arrays(e_c, e_a)
 
+    table = _exponent_table()
+
     def lookup(e: FloatArray) -> FloatArray:
-        out = np.full(e.shape, np.nan)
-        for idx in np.ndindex(e.shape):
-            if np.isfinite(e[idx]):
-                out[idx] = BORN_EXPONENTS.get(int(e[idx]), np.nan)
-        return out
+        ok = np.isfinite(e) & (e >= 0) & (e < len(table))
+        return np.where(ok, table[np.where(ok, e, 0).astype(np.intp)], np.nan)
 
     return 0.5 * (lookup(e_c) + lookup(e_a))
 

@@ -19,11 +19,10 @@ from dataclasses import dataclass, replace
 from functools import lru_cache
 
 import numpy as np
-from openpyxl.utils import get_column_letter
-
 from sheetcycle.chem import parse_formula
 from sheetcycle.errors import FormulaSyntaxError, UnitError
 from sheetcycle.io.cells import CellError, SheetCells
+from sheetcycle.io.evaluate import col_letters
 from sheetcycle.io.headers import HeaderMatch, explain, recognise, split_header
 from sheetcycle.io.numbers import is_missing_marker, parse_number_text
 from sheetcycle.model import Column, Flag, Severity, Table
@@ -82,12 +81,12 @@ class ColumnOverride:
         if self.sheet is not None and self.sheet != sheet:
             return False
         key = self.column.strip()
-        return key.upper() == get_column_letter(col + 1) or key == header.strip()
+        return key.upper() == _letter(col) or key == header.strip()
 
 
 @lru_cache(maxsize=16384)
 def _letter(col: int) -> str:
-    return get_column_letter(col + 1)
+    return col_letters(col)
 
 
 def a1(row0: int, col0: int) -> str:
