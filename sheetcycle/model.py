@@ -121,6 +121,11 @@ class Table:
         return None
 
 
+#: Stands for the row's own sheet row in a cycle term's expression as a table holds it
+#: (``C{#}*4.184``): a column of rows then shares one expression text, and a writer builds
+#: one formula per distinct expression and puts each row's number in.
+ROW_MARK = "{#}"
+
 #: One copy of each distinct method text and sources tuple: a big table repeats the same
 #: few hundred of them across its rows, and holding one per row cost most of a run's memory.
 _SHARED: dict[object, object] = {}

@@ -40,6 +40,7 @@ from sheetcycle.errors import ChemistryError, FormulaSyntaxError
 from sheetcycle.io.safety import Limits
 from sheetcycle.io.tables import ColumnOverride, a1
 from sheetcycle.model import (
+    ROW_MARK,
     Column,
     ComputedValue,
     Flag,
@@ -258,6 +259,8 @@ class _Term:
         self.from_cell = self.from_cell | have
         if col.uncertainties is not None:
             self.sigmas = np.where(have, col.uncertainties, self.sigmas)
+        rowless = a1(0, col.col)[:-1] + ROW_MARK
+        made: dict[float, str] = {}  # one expression text per distinct factor
         for i in np.nonzero(have)[0]:
             i = int(i)
             cell = a1(table.first_row - 1 + i, col.col)
@@ -266,8 +269,11 @@ class _Term:
                 self.exprs[i] = None  # a number read out of text: no formula can use the cell
                 continue
             factor = col.factor * (col.atoms[i] if col.atoms is not None else 1.0)
-            base = cell if factor == 1.0 else f"{cell}*{factor:.15g}"
-            self.exprs[i] = transform.format(base)
+            expr = made.get(factor)
+            if expr is None:
+                base = rowless if factor == 1.0 else f"{rowless}*{factor:.15g}"
+                expr = made[factor] = transform.format(base)
+            self.exprs[i] = expr
 
 
 def _ref_term(
@@ -404,7 +410,10 @@ def _int_or_none(col: Column | None, i: int) -> int | None:
 
 @dataclass
 class _TableTrace:
-    """The cycle of every row of a table, shared by the rows' lazy trace views."""
+    """The cycle of every row of a table, shared by the rows' lazy trace views.
+
+    ``exprs`` are held with :data:`ROW_MARK` for the row number; a view puts it in.
+    """
 
     def __init__(
         self,
@@ -412,11 +421,33 @@ class _TableTrace:
         exprs: dict[str, list[str | None]],
         completed: np.ndarray,
         solved: list[str | None],
+        first_row: int,
     ) -> None:
         self.coefficients = coefficients
         self.exprs = exprs
         self.completed = completed
         self.solved = solved
+        self.first_row = first_row
+        self._coeff_rows: list[tuple[float, ...]] | None = None
+
+    def signature(self, i: int) -> tuple[Any, ...]:
+        """What a row's formulas depend on, with the row number left out: rows with equal
+        signatures have the same formulas but for their own row numbers."""
+        if self._coeff_rows is None:
+            self._coeff_rows = [tuple(c) for c in self.coefficients.tolist()]
+        return (self._coeff_rows[i], tuple(self.exprs[name][i] for name in TERMS),
+                self.solved[i])
+
+
+def _shared_texts(texts: Iterable[str | None]) -> list[str | None]:
+    """The texts as a list holding one object per distinct text."""
+    seen: dict[str, str] = {}
+    return [t if t is None else seen.setdefault(t, t) for t in texts]
+
+
+def at_row(expr: str | None, row: int) -> str | None:
+    """A term expression with the row's own sheet row (1-based) put in for ROW_MARK."""
+    return expr if expr is None or ROW_MARK not in expr else expr.replace(ROW_MARK, str(row))
 
 
 class _TraceView(Mapping[str, Any]):
@@ -433,7 +464,7 @@ class _TraceView(Mapping[str, Any]):
         if key == "coefficients":
             return dict(zip(TERMS, t.coefficients[i].tolist(), strict=True))
         if key == "exprs":
-            return {name: t.exprs[name][i] for name in TERMS}
+            return {name: at_row(t.exprs[name][i], t.first_row + i) for name in TERMS}
         if key == "values":
             return dict(zip(TERMS, t.completed[i].tolist(), strict=True))
         if key == "solved":
@@ -445,6 +476,17 @@ class _TraceView(Mapping[str, Any]):
 
     def __len__(self) -> int:
         return len(self._KEYS)
+
+    def signature(self) -> tuple[Any, ...]:
+        """See :meth:`_TableTrace.signature`."""
+        return self._t.signature(self._i)
+
+    def templates(self) -> dict[str, Any]:
+        """The trace with the row number left as ROW_MARK in its expressions."""
+        t, i = self._t, self._i
+        return {"coefficients": self["coefficients"],
+                "exprs": {name: t.exprs[name][i] for name in TERMS},
+                "solved": t.solved[i]}
 
 
 @dataclass
@@ -618,10 +660,10 @@ def close_table(
         ion_values,
         np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
         ["; ".join(s) if s else None for s in ie_sources],
-        [
+        _shared_texts(
             "+".join(e) if e and not np.isnan(ion_values[i]) else None
             for i, e in enumerate(ie_exprs)
-        ],
+        ),
         np.zeros(n, dtype=bool),
     )
     sum_col = table.column("ionization_energy", 0)
@@ -877,6 +919,7 @@ def _row_results(
         {name: terms[name].exprs for name in TERMS},
         sol.completed,
         [TERMS[k] if st == is_solved else None for st, k in zip(statuses, solved_k, strict=True)],
+        table.first_row,
     )
     notes_lat = _sigma_notes(terms, cyc, n)
     notes_res = _sigma_notes(terms, sol, n)

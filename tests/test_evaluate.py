@@ -334,3 +334,53 @@ def test_column_letters_match_openpyxl() -> None:
 
     for col in (*range(0, 800), 16_383):
         assert a1(0, col) == openpyxl.utils.get_column_letter(col + 1) + "1"
+
+
+_OPERANDS = ("B{r}", "C{r}", "D{r}", "2.5", "4.184", "1e-3")
+
+
+def _arith_shapes(seed: int, count: int) -> list[str]:
+    """Random formulas of + - * /, unary minus, ABS and parentheses over B..D of a row."""
+    import random
+
+    rng = random.Random(seed)
+
+    def expr(depth: int) -> str:
+        if depth == 0 or rng.random() < 0.3:
+            return rng.choice(_OPERANDS)
+        kind = rng.random()
+        if kind < 0.15:
+            return f"-{expr(depth - 1)}"
+        if kind < 0.3:
+            return f"ABS({expr(depth - 1)})"
+        if kind < 0.45:
+            return f"({expr(depth - 1)})"
+        return f"{expr(depth - 1)}{rng.choice('+-*/')}{expr(depth - 1)}"
+
+    return [expr(4) for _ in range(count)]
+
+
+def test_whole_column_arithmetic_agrees_with_the_formulas_package() -> None:
+    # Reference: the `formulas` package (an independent spreadsheet-formula evaluator)
+    # compiles each formula and evaluates it cell by cell; evaluate_cells takes its numpy
+    # whole-column path for these shapes (several rows, numbers only) and must agree.
+    import formulas
+
+    rows = [["x", "b", "c", "d"], *[["r", 1.5 * k - 4, -0.75 * k, k * k + 0.5] for k in range(6)]]
+    checked = 0
+    for text in _arith_shapes(seed=20261202, count=60):
+        targets = [("S", r, 5, "=" + text.format(r=r + 1)) for r in range(1, len(rows))]
+        got = evaluate_cells({"S": [list(x) for x in rows]}, targets)
+        for _, r, c, f in targets:
+            fn = formulas.Parser().ast(f)[1].compile()
+            inputs = {name: rows[int(name[1:]) - 1]["ABCD".index(name[0])] for name in fn.inputs}
+            want = fn(*inputs.values())
+            want = want.ravel()[0] if hasattr(want, "ravel") else want
+            value = got[("S", r, c)]
+            if isinstance(want, int | float) and math.isfinite(want):
+                assert isinstance(value, float), (f, value, want)
+                assert value == pytest.approx(want, rel=1e-12, abs=1e-12), f
+                checked += 1
+            else:  # a spreadsheet error (division by zero): an error value here too
+                assert isinstance(value, CellError), (f, value, want)
+    assert checked > 200

@@ -30,6 +30,7 @@ from sheetcycle.io.cells import SheetCells, WorkbookCells
 from sheetcycle.io.package import (
     AddedCell,
     AddedColumn,
+    ColumnCells,
     CellNote,
     CellValue,  # issue 5: cells that use sheetcycle's worksheet functions
     NewSheet,
@@ -37,7 +38,7 @@ from sheetcycle.io.package import (
     write_annotated,
 )
 from sheetcycle.io.tables import a1
-from sheetcycle.model import Flag, RowResult, RunResult, Severity, Table
+from sheetcycle.model import ROW_MARK, Flag, RowResult, RunResult, Severity, Table
 
 __all__ = [
     "FLAGS_SHEET",
@@ -74,7 +75,8 @@ _FORMULA_ORDER = (
 )
 assert set(_FORMULA_ORDER) == set(TERMS)
 _TOKEN = re.compile(r"\{R\|([^{}|]+)\|([a-z_]+)\|(\d+)\}")
-_SIMPLE = re.compile(r"^(?:\$?[A-Z]{1,3}\$?\d+|'[^']+'!\$?[A-Z]{1,3}\$?\d+)$")
+_ROW = r"(?:\d+|\{#\})"  # a row number, or ROW_MARK in a template
+_SIMPLE = re.compile(rf"^(?:\$?[A-Z]{{1,3}}\$?{_ROW}|'[^']+'!\$?[A-Z]{{1,3}}\$?{_ROW})$")
 _RANK = {Severity.NOTE: 0, Severity.WARNING: 1, Severity.ERROR: 2}
 
 
@@ -240,38 +242,49 @@ def _table_columns(
         layout.append((n, "value"))
     col_of = {key: start + j for j, key in enumerate(layout)}
     columns: list[AddedColumn] = []
+    templates: dict[tuple[Any, ...], str | None] = {}  # (value, trace signature) -> formula
     for key in layout:
         name, part = key
-        cells: list[AddedCell] = []
+        numbers: list[float | None] = []
+        formulas: list[str | None] | None = [] if part == "value" else None
+        letters = a1(0, col_of[key])[:-1]
         for i, r in enumerate(rows):
-            sheet_row = table.first_row + i
             v = r.values.get(name) if r is not None else None
-            if v is None:
-                cells.append(AddedCell(None))
+            number = None if v is None else (v.value if part == "value" else v.uncertainty)
+            if number is None or number != number:  # missing, NaN
+                numbers.append(None)
+                if formulas is not None:
+                    formulas.append(None)
                 continue
-            number = v.value if part == "value" else v.uncertainty
-            if number is None or (isinstance(number, float) and math.isnan(number)):
-                cells.append(AddedCell(None))
+            number = float(number)
+            numbers.append(number)
+            if formulas is None:
                 continue
             formula = None
-            if part == "value" and r is not None and r.trace:
-                formula = _value_formula(name, r, sheet_row, col_of, refs)
+            if r is not None and r.trace:
+                formula = _row_formula(name, r, table.first_row + i, col_of, refs, templates)
+            formulas.append(formula)
             if formula is not None:
-                plan.formulas.append(
-                    (table.sheet, a1(sheet_row - 1, col_of[key]), formula, float(number))
-                )
-            cells.append(AddedCell(float(number), formula=formula, style="number"))
+                plan.formulas.append((table.sheet, f"{letters}{table.first_row + i}", formula,
+                                      number))
         heading = VALUE_HEADINGS.get(name, _heading_of(name, rows))
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
-        columns.append(AddedColumn(heading, cells, number_format="0.0"))
-    flags_cells = [
-        AddedCell(_flag_text(r.flags), style=_worst(r.flags).value if r.flags else None)
-        if r is not None and r.flags
-        else AddedCell(None)
-        for r in rows
-    ]
-    columns.append(AddedColumn("sheetcycle flags", flags_cells, number_format=None, width=60))
+        if formulas is not None and not any(f is not None for f in formulas):
+            formulas = None
+        columns.append(AddedColumn(heading, ColumnCells(numbers, formulas, "number"),
+                                   number_format="0.0"))
+    texts: list[str | None] = []
+    styles: list[str | None] = []
+    for r in rows:
+        if r is not None and r.flags:
+            texts.append(_flag_text(r.flags))
+            styles.append(_worst(r.flags).value)  # type: ignore[union-attr]
+        else:
+            texts.append(None)
+            styles.append(None)
+    columns.append(AddedColumn("sheetcycle flags", ColumnCells(texts, None, styles),
+                               number_format=None, width=60))
     header_cell = a1(table.header_row - 1, min(c.col for c in table.columns))
     return SheetAddition(
         table.sheet,
@@ -289,14 +302,35 @@ def _heading_of(name: str, rows: Sequence[RowResult | None]) -> str:
     return f"{label} / {unit}" if unit else label
 
 
-def _value_formula(
+def _row_formula(
     name: str,
     r: RowResult,
     sheet_row: int,
     col_of: Mapping[tuple[str, str], int],
     refs: Callable[[str, str, int], str],
+    templates: dict[tuple[Any, ...], str | None],
 ) -> str | None:
-    trace = r.trace
+    """The formula of one computed cell: made once per distinct row signature (rows whose
+    cycles differ only in their row numbers) and given this row's number."""
+    signature = getattr(r.trace, "signature", None)
+    if signature is None:  # a trace held as a plain mapping
+        return _value_formula(name, r.trace, sheet_row, col_of, refs)
+    key = (name, signature())
+    template = templates.get(key, "")
+    if template == "":
+        template = templates[key] = _value_formula(name, r.trace.templates(), ROW_MARK,
+                                                   col_of, refs)
+    return template if template is None else template.replace(ROW_MARK, str(sheet_row))
+
+
+def _value_formula(
+    name: str,
+    trace: Mapping[str, Any],
+    sheet_row: int | str,
+    col_of: Mapping[tuple[str, str], int],
+    refs: Callable[[str, str, int], str],
+) -> str | None:
+    """The formula of one computed cell; ``sheet_row`` may be ROW_MARK (a template)."""
     if name == "lattice_enthalpy":
         return cycle_formula(trace, "lattice_enthalpy", refs)
     if name == "closure_residual":
@@ -304,7 +338,7 @@ def _value_formula(
         lat = col_of.get(("lattice_enthalpy", "value"))
         if given is None or lat is None:
             return None
-        return f"{a1(sheet_row - 1, lat)}-{_paren(given)}"
+        return f"{a1(0, lat)[:-1]}{sheet_row}-{_paren(given)}"
     solved = trace.get("solved")
     if solved is not None and name in (
         "formation_enthalpy",
@@ -529,9 +563,13 @@ def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
     out: dict[tuple[str, int, int], object] = {}
     for add in plan.additions:
         for j, col in enumerate(add.columns):
-            for i, cell in enumerate(col.cells):
-                if cell.value is not None:
-                    out[(add.sheet, add.first_row - 1 + i, add.start_col + j)] = cell.value
+            cells = col.cells
+            values = (cells.values if isinstance(cells, ColumnCells)
+                      else [cell.value for cell in cells])
+            r0, c = add.first_row - 1, add.start_col + j
+            for i, v in enumerate(values):
+                if v is not None:
+                    out[(add.sheet, r0 + i, c)] = v
     for sheet in plan.new_sheets:
         for r, row in enumerate(sheet.rows):
             for c, cell in enumerate(row):

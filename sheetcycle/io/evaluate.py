@@ -626,21 +626,37 @@ def _order(targets: list[_Target]) -> tuple[list[list[int]], list[int]]:
     return levels, stuck
 
 
-_ARITH = re.compile(r"(?:XREF\d+|(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?|[-+*/()\s])*")
+_ARITH = re.compile(
+    r"(?:XREF\d+|(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?|(?i:ABS)(?=\()|[-+*/()\s])*"
+)
 _PLACEHOLDER = re.compile(r"XREF(\d+)")
+_ABS = re.compile(r"(?i:ABS)\(")
 
 
-def _arithmetic(shape: str, order: list[int], raw: list[list[object]], np: Any) -> Any:
-    """Whole-column float evaluation of a shape made only of + - * / and parentheses.
+def _arithmetic_order(shape: str) -> list[int] | None:
+    """The placeholders of an arithmetic shape (see :func:`_arithmetic`), or None."""
+    if not _ARITH.fullmatch(shape[1:]):
+        return None
+    return sorted({int(k) for k in _PLACEHOLDER.findall(shape)})
+
+
+def _arithmetic(shape: str, order: list[int], raw: list[list[object]], np: Any,
+                n: int) -> Any:
+    """Whole-column float evaluation of a shape made only of + - * /, ABS and parentheses.
 
     A fast path for the commonest formulas, taken only when every input is a number or
     blank (blank counts as 0, as in a spreadsheet). Returns a float array, with inf/NaN
     where the spreadsheet would give an error (those cells are then re-done by the
-    ``formulas`` package), or None when the path does not apply.
+    ``formulas`` package), or None when the path does not apply. With only these
+    operators, spreadsheet and Python precedence agree (unary minus binds tightest in
+    both; there is no ^ or %). Such a shape never needs the ``formulas`` package, whose
+    function library alone takes over a second to load (tests/test_evaluate.py checks the
+    two agree).
     """
     body = shape[1:]
     if not _ARITH.fullmatch(body):
         return None
+    body = _ABS.sub("abs(", body)
     arrays: dict[str, Any] = {}
     for k, values in zip(order, raw, strict=True):
         for v in values:
@@ -651,10 +667,9 @@ def _arithmetic(shape: str, order: list[int], raw: list[list[object]], np: Any) 
     try:
         code = compile(expr, "<formula>", "eval")
         with np.errstate(all="ignore"):
-            out = eval(code, {"__builtins__": {}}, arrays)
+            out = eval(code, {"__builtins__": {}, "abs": np.abs}, arrays)
     except (SyntaxError, TypeError, ValueError, ZeroDivisionError):
         return None
-    n = len(raw[0]) if raw else 0
     out = np.broadcast_to(np.asarray(out, dtype=float), (n,))
     return out
 
@@ -707,9 +722,10 @@ def evaluate_cells(
         if fn is None:
             import formulas
 
-            from sheetcycle.io.functions import register
+            from sheetcycle.io.functions import register, uses_own_functions
 
-            register()
+            if uses_own_functions(shape):
+                register()  # loads every function module of formulas: about a second
             try:
                 fn = formulas.Parser().ast(shape)[1].compile()
                 inputs = list(fn.inputs)
@@ -755,21 +771,22 @@ def evaluate_cells(
             else:
                 groups[t.shape].append(i)
         for shape, members in groups.items():
-            fn = compile_shape(shape)
-            if isinstance(fn, CellError):
-                for i in members:
-                    store(i, fn)
-                continue
-            func, order = fn
-            if len(members) > 1 and made[members[0]].single:
-                raw = [
+            single = made[members[0]].single
+
+            def raw_inputs(order: list[int], members: list[int] = members) -> list[list[object]]:
+                return [
                     [
                         _get(grids[ref[0]], ref[1], ref[2])
                         for ref in (made[i].refs[k] for i in members)
                     ]
                     for k in order
                 ]
-                fast = _arithmetic(shape, order, raw, np)
+
+            raw = None
+            arith = _arithmetic_order(shape) if single else None
+            if arith is not None:
+                raw = raw_inputs(arith)
+                fast = _arithmetic(shape, arith, raw, np, len(members))
                 if fast is not None:
                     redo = []
                     for n, (i, v) in enumerate(zip(members, fast.tolist(), strict=True)):
@@ -780,7 +797,15 @@ def evaluate_cells(
                     if not redo:
                         continue
                     members = [members[n] for n in redo]
-                    raw = [[col[n] for n in redo] for col in raw]
+                raw = None
+            fn = compile_shape(shape)
+            if isinstance(fn, CellError):
+                for i in members:
+                    store(i, fn)
+                continue
+            func, order = fn
+            if len(members) > 1 and single:
+                raw = raw_inputs(order, members)
                 cols = []
                 for values in raw:
                     col = np.empty(len(values), dtype=object)

@@ -14,10 +14,76 @@ from dataclasses import dataclass
 from sheetcycle.io.package_styles import StyleBook
 from sheetcycle.io.package_xml import col_letters, esc_attr, esc_text
 
-__all__ = ["CellStyler", "cell_xml", "new_sheet_xml"]
+__all__ = ["AddedCell", "CellStyler", "ColumnCells", "cell_xml", "new_sheet_xml"]
 
 #: Severity -> fill colour '#RRGGBB'.
 FillMap = Mapping[str, str]
+
+
+@dataclass(frozen=True, slots=True, init=False)
+class AddedCell:
+    """One new cell. ``formula`` is A1 text without '='; ``value`` is its cached value."""
+
+    value: float | str | None
+    formula: str | None
+    style: str | None  # header, number, text, error, warning, note
+
+    def __init__(
+        self, value: float | str | None, formula: str | None = None, style: str | None = None
+    ) -> None:
+        # Callers build hundreds of thousands of these: set the slots directly (2.4x
+        # faster than the generated frozen __init__); the instance stays immutable.
+        _SET_VALUE(self, value)
+        _SET_FORMULA(self, formula)
+        _SET_STYLE(self, style)
+
+
+_SET_VALUE = AddedCell.__dict__["value"].__set__
+_SET_FORMULA = AddedCell.__dict__["formula"].__set__
+_SET_STYLE = AddedCell.__dict__["style"].__set__
+
+
+class ColumnCells(Sequence[AddedCell]):
+    """An added column's cells held column-wise: a value and a formula per row, and a style
+    for every cell that holds something (one for all, or one per row).
+
+    The plan of a large table makes one of these per column instead of an
+    :class:`AddedCell` per cell; the sheet writer reads the lists directly. Indexing still
+    gives :class:`AddedCell` objects, equal to those the column stands for.
+    """
+
+    __slots__ = ("formulas", "style", "values")
+
+    def __init__(
+        self,
+        values: Sequence[float | str | None],
+        formulas: Sequence[str | None] | None = None,
+        style: str | Sequence[str | None] | None = None,
+    ) -> None:
+        if formulas is not None and len(formulas) != len(values):
+            raise ValueError("one formula (or None) per value")
+        if style is not None and not isinstance(style, str) and len(style) != len(values):
+            raise ValueError("one style (or None) per value")
+        self.values = values
+        self.formulas = formulas
+        self.style = style
+
+    def __len__(self) -> int:
+        return len(self.values)
+
+    def at(self, i: int) -> tuple[float | str | None, str | None, str | None]:
+        """(value, formula, style) of row ``i``."""
+        value = self.values[i]
+        formula = self.formulas[i] if self.formulas is not None else None
+        if value is None and formula is None:
+            return None, None, None
+        style = self.style if self.style is None or isinstance(self.style, str) else self.style[i]
+        return value, formula, style
+
+    def __getitem__(self, i):  # type: ignore[no-untyped-def,override]
+        if isinstance(i, slice):
+            return [self[k] for k in range(*i.indices(len(self)))]
+        return AddedCell(*self.at(i))
 
 
 def _num(v: float) -> str:

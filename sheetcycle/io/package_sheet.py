@@ -20,7 +20,8 @@ from dataclasses import dataclass, field
 from typing import IO
 
 from sheetcycle.errors import ReadError, WriteError
-from sheetcycle.io.package_cells import CellStyler, cell_xml
+from sheetcycle.io.package_cells import CellStyler, ColumnCells, cell_xml
+
 from sheetcycle.io.package_update import RewriteError, SharedPromotion, rewrite_cell
 from sheetcycle.io.package_xml import (
     _NEEDS_ESCAPE,
@@ -291,32 +292,38 @@ class SheetRewriter:
             if first <= r < first + n:
                 i = r - first
                 for col in cols:
-                    cell = col.cells[i]  # type: ignore[index]
-                    value, formula = cell.value, cell.formula
-                    if (  # the common case inline: a formula with a finite number, no note
-                        formula is not None
-                        and type(value) is float
-                        and cell.style is None
-                        and not notes
+                    cells = col.cells
+                    if type(cells) is ColumnCells:
+                        value, formula, style = cells.at(i)
+                        if value is None and formula is None and not (notes and col.col in notes):
+                            continue  # nothing to write
+                    else:
+                        cell = cells[i]  # type: ignore[index]
+                        value, formula, style = cell.value, cell.formula, cell.style
+                    if (  # the common case inline: a finite number, a plain format, no note
+                        type(value) is float
+                        and (style is None or style == "number")
+                        and not (notes and col.col in notes)
                         and -_HUGE < value < _HUGE
-                        and _NEEDS_ESCAPE.search(formula) is None
+                        and (formula is None or _NEEDS_ESCAPE.search(formula) is None)
                     ):
                         sa = self._plain_s.get(col.col)
                         if sa is None:
                             s = self._style(col, None, True)
                             sa = self._plain_s[col.col] = f' s="{s}"' if s else ""
+                        f = "" if formula is None else f"<{p}f>{formula}</{p}f>"
                         out.append(
                             (
                                 col.col,
-                                f'<{p}c r="{letters[col.col]}{r}"{sa}><{p}f>'
-                                f"{formula}</{p}f><{p}v>{value!r}</{p}v></{p}c>",
+                                f'<{p}c r="{letters[col.col]}{r}"{sa}>{f}'
+                                f"<{p}v>{value!r}</{p}v></{p}c>",
                             )
                         )
                         continue
                     numeric = formula is not None or (
                         value is not None and not isinstance(value, str)
                     )
-                    s = self._style(col, cell.style, numeric)
+                    s = self._style(col, style, numeric)
                     if notes and col.col in notes:
                         s = self.styler.styles.with_fill(s, notes[col.col])
                     out.append((col.col, cell_xml(p, f"{letters[col.col]}{r}", s, value, formula)))
