@@ -231,7 +231,9 @@ def _parse(text: str, kind: str | None) -> pint.Unit:
         return registry().dimensionless
     _checked(text, norm)
     try:
-        return registry().parse_units(norm)
+        unit = registry().parse_units(norm)
+        unit.dimensionality  # noqa: B018 - some parsed units (A1dB -> delta_decibel) fail here
+        return unit
     except Exception as exc:  # pint raises many types (UndefinedUnitError, TypeError, ...)
         raise UnitError(
             f"unit '{text}' is not a unit sheetcycle can read ({exc})",

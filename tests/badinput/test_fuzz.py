@@ -93,6 +93,8 @@ def test_parsers_accept_and_refuse_known_texts() -> None:
         parse_formula("Na((Cl")
     with pytest.raises(SheetcycleError):
         conversion("J/K", "energy")  # an entropy unit is not an energy per mole
+    with pytest.raises(SheetcycleError):
+        conversion("A1dB", "energy")  # found by the fuzz test above: pint parsed it, then failed
 
 
 # ----------------------------------------------------------------- mutation fuzz
