@@ -9,10 +9,10 @@ densities in g/cm3, volumes in nm3 per formula unit.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from enum import Enum
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -121,6 +121,8 @@ class Table:
         return None
 
 
+_T = TypeVar("_T")
+
 #: Stands for the row's own sheet row in a cycle term's expression as a table holds it
 #: (``C{#}*4.184``): a column of rows then shares one expression text, and a writer builds
 #: one formula per distinct expression and puts each row's number in.
@@ -137,21 +139,29 @@ def _shared(x: object) -> object:
     return x
 
 
-#: A zero-argument callable that renders ``(method, sources)`` when they are first read.
-Render = Callable[[], tuple[str, tuple[str, ...]]]
+def share(text: _T) -> _T:
+    """One copy of an equal text (or tuple of texts) for every holder: a large table repeats
+    the same few hundred method words, sources and labels across its rows."""
+    return _shared(text)  # type: ignore[return-value]
+
+
+#: Renders ``(method, sources)`` of one value from its key (a row index, say) when they are
+#: first read. One renderer serves a whole column of values.
+Render = Callable[[Any], tuple[str, Sequence[str]]]
 
 
 class ComputedValue:
     """One derived number with everything needed to trace it.
 
     ``method`` and ``sources`` are plain attributes to a reader. A pass that makes one value
-    per row of a large table may hand over a ``render`` callable instead
+    per row of a large table may hand over a shared renderer and the row's key instead
     (:meth:`deferred`): the words are then written only when something reads them (the
     JSON report, the results workbook), not for every row of every run. The annotated copy
-    of a workbook never reads them, and formatting them cost a large share of its run time.
+    of a workbook never reads them; formatting and holding them cost much of its run time
+    and memory.
     """
 
-    __slots__ = ("value", "uncertainty", "unit", "_method", "_sources")
+    __slots__ = ("_method", "_sources", "uncertainty", "unit", "value")
 
     value: float
     uncertainty: float
@@ -167,32 +177,32 @@ class ComputedValue:
         _set(self, "_sources", _shared(sources))
 
     @classmethod
-    def deferred(cls, value: float, uncertainty: float, unit: str,
-                 render: Render) -> ComputedValue:
-        """A value whose method text and sources are rendered on first reading."""
+    def deferred(cls, value: float, uncertainty: float, unit: str, render: Render,
+                 key: Any) -> ComputedValue:
+        """A value whose method text and sources are ``render(key)``, made on first reading."""
         self = cls.__new__(cls)
         _set = object.__setattr__
         _set(self, "value", value)
         _set(self, "uncertainty", uncertainty)
         _set(self, "unit", unit)
         _set(self, "_method", render)
-        _set(self, "_sources", None)
+        _set(self, "_sources", key)
         return self
 
     def _render(self) -> None:
-        method, sources = self._method()  # type: ignore[operator]
+        method, sources = self._method(self._sources)  # type: ignore[operator]
         object.__setattr__(self, "_method", _shared(method))
         object.__setattr__(self, "_sources", _shared(tuple(sources)))
 
     @property
     def method(self) -> str:
-        if self._sources is None:
+        if type(self._method) is not str:
             self._render()
         return self._method  # type: ignore[return-value]
 
     @property
     def sources(self) -> tuple[str, ...]:
-        if self._sources is None:
+        if type(self._method) is not str:
             self._render()
         return self._sources  # type: ignore[return-value]
 

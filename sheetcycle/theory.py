@@ -36,7 +36,7 @@ from sheetcycle.data.radii import (
 )
 from sheetcycle.engine import lattice_models as lm
 from sheetcycle.io.tables import a1
-from sheetcycle.model import Column, ComputedValue, Flag, Severity
+from sheetcycle.model import Column, ComputedValue, Flag, Severity, share
 from sheetcycle.pipeline import TableContext
 
 __all__ = ["COMPARISON_ORDER", "DIFFERENCE_SUFFIX", "MODELS", "theory_pass"]
@@ -164,7 +164,8 @@ def _ions_and_structures(ctx: TableContext, flags: list[list[Flag]]) -> _Rows:
         ok[i] = True
         zc[i], za[i] = ions.cation_charge, ions.anion_charge
         nc[i], na[i] = ions.n_cation, ions.n_anion
-        labels[i] = (_ion(ions.cation, ions.cation_charge), _ion(ions.anion, ions.anion_charge))
+        labels[i] = share((_ion(ions.cation, ions.cation_charge),
+                           _ion(ions.anion, ions.anion_charge)))
         formula = ctx.rows[i].formula or ""
         typed = scol.texts[i] if scol is not None and scol.texts is not None else None
         if typed and typed.strip():
@@ -194,7 +195,7 @@ def _ions_and_structures(ctx: TableContext, flags: list[list[Flag]]) -> _Rows:
             structure_src[i] = f"structure {found[0]} of {formula}: built-in table ({built[1]})"
         structure[i] = found[0]
         mad[i] = found[1]
-        structure_src[i] += f"; Madelung constant {found[1]:g} ({found[2]})"
+        structure_src[i] = share(structure_src[i] + f"; Madelung constant {found[1]:g} ({found[2]})")
     return _Rows(n, ok, zc, za, nc, na, labels, structure, mad, structure_src)
 
 
@@ -222,7 +223,7 @@ def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | Non
                 missing[i].add(label)
                 continue
             out[i] = found[0]
-            srcs[i].append(f"r({label}) = {found[0]:g} pm: {found[1]}")
+            srcs[i].append(share(f"r({label}) = {found[0]:g} pm: {found[1]}"))
     return rc, ra, srcs
 
 
@@ -381,6 +382,11 @@ def _enthalpy_words(u: float, corr: float) -> str:
             "(Jenkins correction [p(n/2 − 2) + q(n/2 − 2)]RT, monatomic ions n = 3)")
 
 
+def _model_words(name: str, rows: _Rows, models: dict[str, FloatArray], corr: FloatArray,
+                 i: int) -> tuple[str, tuple[str, ...]]:
+    return _method(name, rows, i, float(models[name][i]), float(corr[i]))
+
+
 def _method(name: str, rows: _Rows, i: int, u: float, corr: float) -> tuple[str, tuple[str, ...]]:
     if name == "kapustinskii":
         rc, ra = rows.r_kap[0][i], rows.r_kap[1][i]
@@ -464,6 +470,9 @@ def theory_pass(ctx: TableContext) -> None:
         spread_pct = 100.0 * spread / lowest
 
     pick = _comparison_models(models, diffs)
+    # one renderer per model for the whole table: a value keeps only its row index
+    words = {m: partial(_model_words, m, rows, models, corr) for m in MODELS}
+    diff_words = {m: partial(_difference_words, m, cycle, models, corr) for m in MODELS}
     fcol = ctx.table.column("formula")
     for i in range(n):
         if not rows.ok[i]:
@@ -481,10 +490,10 @@ def theory_pass(ctx: TableContext) -> None:
             if not math.isfinite(u):
                 continue
             # the words are written when read (JSON, results workbook), not for every row
-            rr.values[name] = ComputedValue.deferred(
-                u, math.nan, KJ, partial(_method, name, rows, i, u, float(corr[i])))
+            rr.values[name] = ComputedValue.deferred(u, math.nan, KJ, words[name], i)
         if math.isfinite(cycle[i]):
-            _compare(ctx, rows, i, models, corr, cycle, diffs, diff_sigma, fcell, flags, pick)
+            _compare(ctx, rows, i, models, corr, cycle, diffs, diff_sigma, fcell, flags, pick,
+                         diff_words)
         if math.isfinite(spread_pct[i]) and spread_pct[i] > ctx.settings.model_spread:
             have = {m: float(models[m][i]) for m in MODELS if math.isfinite(models[m][i])}
             hi = max(have, key=have.__getitem__)
@@ -525,12 +534,13 @@ def _comparison_models(models: dict[str, FloatArray], diffs: dict[str, FloatArra
             for c, x, a in zip(chosen.tolist(), d.tolist(), alone.tolist(), strict=True)]
 
 
-def _difference_words(name: str, cycle: float, u: float,
-                      corr: float) -> tuple[str, tuple[str, ...]]:
-    h = u + corr
+def _difference_words(name: str, cycle: FloatArray, models: dict[str, FloatArray],
+                      corr: FloatArray, i: int) -> tuple[str, tuple[str, ...]]:
+    u, c = float(models[name][i]), float(corr[i])
+    cycle_i, h = float(cycle[i]), u + c
     return (f"100·(Born-Haber ΔH_L − {_TITLE[name]} ΔH_L)/{_TITLE[name]} ΔH_L = "
-            f"100·({cycle:.1f} − {h:.1f})/{h:.1f}; the model's U {u:.1f} "
-            f"kJ/mol turned into ΔH_L(298 K) with the Jenkins correction {_signed(corr)} kJ/mol "
+            f"100·({cycle_i:.1f} − {h:.1f})/{h:.1f}; the model's U {u:.1f} "
+            f"kJ/mol turned into ΔH_L(298 K) with the Jenkins correction {_signed(c)} kJ/mol "
             "(monatomic ions, n = 3); positive: the cycle value lies above the ionic model",
             (f"{name} (this row)", "lattice_enthalpy (this row)", _SRC_JENKINS))
 
@@ -539,16 +549,15 @@ def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArra
              corr: FloatArray, cycle: FloatArray, diffs: dict[str, FloatArray],
              diff_sigma: dict[str, FloatArray], fcell: str | None,
              flags: list[list[Flag]],
-             pick: Sequence[tuple[str | None, float, bool]]) -> None:
+             pick: Sequence[tuple[str | None, float, bool]],
+             diff_words: dict[str, partial[tuple[str, tuple[str, ...]]]]) -> None:
     rr = ctx.rows[i]
     for name in MODELS:
         d = float(diffs[name][i])
         if not math.isfinite(d):
             continue
         rr.values[name + DIFFERENCE_SUFFIX] = ComputedValue.deferred(
-            d, float(diff_sigma[name][i]), "%",
-            partial(_difference_words, name, float(cycle[i]), float(models[name][i]),
-                    float(corr[i])))
+            d, float(diff_sigma[name][i]), "%", diff_words[name], i)
     chosen, d, alone = pick[i]
     if chosen is None or not d > ctx.settings.covalent_threshold:
         return
