@@ -428,15 +428,21 @@ class _TableTrace:
         self.completed = completed
         self.solved = solved
         self.first_row = first_row
-        self._coeff_rows: list[tuple[float, ...]] | None = None
+        self._codes: list[int] | None = None
 
-    def signature(self, i: int) -> tuple[Any, ...]:
-        """What a row's formulas depend on, with the row number left out: rows with equal
-        signatures have the same formulas but for their own row numbers."""
-        if self._coeff_rows is None:
-            self._coeff_rows = [tuple(c) for c in self.coefficients.tolist()]
-        return (self._coeff_rows[i], tuple(self.exprs[name][i] for name in TERMS),
-                self.solved[i])
+    def signature(self, i: int) -> int:
+        """What a row's formulas depend on, with the row number left out, as a small code:
+        rows with equal codes have the same formulas but for their own row numbers."""
+        if self._codes is None:
+            n = self.coefficients.shape[0]
+            parts = [np.unique(self.coefficients, axis=0, return_inverse=True)[1].reshape(n)]
+            for texts in (*(self.exprs[name] for name in TERMS), self.solved):
+                ids: dict[str | None, int] = {}
+                parts.append(np.fromiter((ids.setdefault(t, len(ids)) for t in texts),
+                                         dtype=np.int64, count=n))
+            self._codes = np.unique(np.stack(parts, axis=1), axis=0,
+                                    return_inverse=True)[1].reshape(n).tolist()
+        return self._codes[i]
 
 
 def _shared_texts(texts: Iterable[str | None]) -> list[str | None]:
@@ -477,9 +483,9 @@ class _TraceView(Mapping[str, Any]):
     def __len__(self) -> int:
         return len(self._KEYS)
 
-    def signature(self) -> tuple[Any, ...]:
-        """See :meth:`_TableTrace.signature`."""
-        return self._t.signature(self._i)
+    def signature(self) -> tuple[int, int]:
+        """See :meth:`_TableTrace.signature`; with the table's identity."""
+        return id(self._t), self._t.signature(self._i)
 
     def templates(self) -> dict[str, Any]:
         """The trace with the row number left as ROW_MARK in its expressions."""
