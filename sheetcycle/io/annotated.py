@@ -559,13 +559,21 @@ def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1
 
 
 def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
-    """Values of every cell the plan adds (formulas may point at each other and at them)."""
+    """Values of the added cells formulas may point at: the cells of added columns that
+    hold formulas (a closure residual points at its lattice cell) and of the new sheets
+    (the reference values). The plain-value columns (uncertainties, model values, flags)
+    are never pointed at; leaving them out keeps the check's memory to a fraction. A
+    formula that did point at one would see a blank and fail the check, never pass it."""
     out: dict[tuple[str, int, int], object] = {}
     for add in plan.additions:
         for j, col in enumerate(add.columns):
             cells = col.cells
-            values = (cells.values if isinstance(cells, ColumnCells)
-                      else [cell.value for cell in cells])
+            if isinstance(cells, ColumnCells):
+                if cells.formulas is None:
+                    continue
+                values = cells.values
+            else:
+                values = [cell.value for cell in cells]
             r0, c = add.first_row - 1, add.start_col + j
             for i, v in enumerate(values):
                 if v is not None:
