@@ -133,16 +133,12 @@ ROW_MARK = "{#}"
 _SHARED: dict[object, object] = {}
 
 
-def _shared(x: object) -> object:
-    if len(_SHARED) < 100_000:
-        return _SHARED.setdefault(x, x)
-    return x
-
-
 def share(text: _T) -> _T:
     """One copy of an equal text (or tuple of texts) for every holder: a large table repeats
     the same few hundred method words, sources and labels across its rows."""
-    return _shared(text)  # type: ignore[return-value]
+    if len(_SHARED) < 100_000:
+        return _SHARED.setdefault(text, text)  # type: ignore[return-value]
+    return text
 
 
 #: Renders ``(method, sources)`` of one value from its key (a row index, say) when they are
@@ -173,8 +169,8 @@ class ComputedValue:
         _set(self, "value", value)
         _set(self, "uncertainty", uncertainty)
         _set(self, "unit", unit)
-        _set(self, "_method", _shared(method))
-        _set(self, "_sources", _shared(sources))
+        _set(self, "_method", share(method))
+        _set(self, "_sources", share(sources))
 
     @classmethod
     def deferred(cls, value: float, uncertainty: float, unit: str, render: Render,
@@ -191,8 +187,8 @@ class ComputedValue:
 
     def _render(self) -> None:
         method, sources = self._method(self._sources)  # type: ignore[operator]
-        object.__setattr__(self, "_method", _shared(method))
-        object.__setattr__(self, "_sources", _shared(tuple(sources)))
+        object.__setattr__(self, "_method", share(method))
+        object.__setattr__(self, "_sources", share(tuple(sources)))
 
     @property
     def method(self) -> str:

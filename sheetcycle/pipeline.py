@@ -50,6 +50,7 @@ from sheetcycle.model import (
     RunResult,
     Severity,
     Table,
+    share,
 )
 
 __all__ = ["Settings", "close_table", "element_overrides", "run_tables"]
@@ -445,12 +446,6 @@ class _TableTrace:
         return self._codes[i]
 
 
-def _shared_texts(texts: Iterable[str | None]) -> list[str | None]:
-    """The texts as a list holding one object per distinct text."""
-    seen: dict[str, str] = {}
-    return [t if t is None else seen.setdefault(t, t) for t in texts]
-
-
 def at_row(expr: str | None, row: int) -> str | None:
     """A term expression with the row's own sheet row (1-based) put in for ROW_MARK."""
     return expr if expr is None or ROW_MARK not in expr else expr.replace(ROW_MARK, str(row))
@@ -666,10 +661,10 @@ def close_table(
         ion_values,
         np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
         ["; ".join(s) if s else None for s in ie_sources],
-        _shared_texts(
-            "+".join(e) if e and not np.isnan(ion_values[i]) else None
+        [
+            share("+".join(e)) if e and not np.isnan(ion_values[i]) else None
             for i, e in enumerate(ie_exprs)
-        ),
+        ],
         np.zeros(n, dtype=bool),
     )
     sum_col = table.column("ionization_energy", 0)

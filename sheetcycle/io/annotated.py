@@ -17,7 +17,6 @@ users' formulas) against the engine's value before anything is written.
 
 from __future__ import annotations
 
-import math
 import re
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field

@@ -782,11 +782,9 @@ def evaluate_cells(
                     for k in order
                 ]
 
-            raw = None
             arith = _arithmetic_order(shape) if single else None
             if arith is not None:
-                raw = raw_inputs(arith)
-                fast = _arithmetic(shape, arith, raw, np, len(members))
+                fast = _arithmetic(shape, arith, raw_inputs(arith), np, len(members))
                 if fast is not None:
                     redo = []
                     for n, (i, v) in enumerate(zip(members, fast.tolist(), strict=True)):
@@ -797,7 +795,6 @@ def evaluate_cells(
                     if not redo:
                         continue
                     members = [members[n] for n in redo]
-                raw = None
             fn = compile_shape(shape)
             if isinstance(fn, CellError):
                 for i in members:

@@ -21,7 +21,6 @@ from typing import IO
 
 from sheetcycle.errors import ReadError, WriteError
 from sheetcycle.io.package_cells import CellStyler, ColumnCells, cell_xml
-
 from sheetcycle.io.package_update import RewriteError, SharedPromotion, rewrite_cell
 from sheetcycle.io.package_xml import (
     _NEEDS_ESCAPE,
