@@ -9,7 +9,7 @@ densities in g/cm3, volumes in nm3 per formula unit.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, MutableMapping, Sequence
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any, TypeVar
@@ -27,6 +27,7 @@ __all__ = [
     "RunResult",
     "Severity",
     "Table",
+    "TableValues",
 ]
 
 FloatArray = npt.NDArray[np.float64]
@@ -237,6 +238,149 @@ class ComputedValue:
         }
 
 
+class _ValueColumn:
+    """One computed quantity over every row of a table (see :class:`TableValues`)."""
+
+    __slots__ = ("present", "render", "seq", "sigmas", "unit", "values")
+
+    def __init__(self, values: np.ndarray, sigmas: np.ndarray, unit: str, render: Render,
+                 present: np.ndarray, seq: int) -> None:
+        self.values = values
+        self.sigmas = sigmas
+        self.unit = unit
+        self.render = render
+        self.present = present
+        self.seq = seq
+
+
+class TableValues:
+    """The computed quantities of one table, held column-wise.
+
+    A pass that derives a quantity for many rows of a table puts it here once, as arrays
+    (:meth:`put`), instead of one :class:`ComputedValue` per row; each row's
+    :class:`RowValues` shows it as a ComputedValue when read. Writers of whole columns (the
+    annotated copy) read the arrays directly (:meth:`column`). Values a pass sets row by row
+    stay with that row, in the order they were set.
+    """
+
+    __slots__ = ("_columns", "_seq", "n")
+
+    def __init__(self, n: int) -> None:
+        self.n = n
+        self._columns: dict[str, _ValueColumn] = {}
+        self._seq = 0
+
+    def _next(self) -> int:
+        self._seq += 1
+        return self._seq
+
+    def put(self, name: str, values: Any, sigmas: Any, unit: str, render: Render,
+            present: Any = None) -> None:
+        """Give ``name`` to the rows where ``present`` (default: where the value is a
+        number). ``render(i)`` gives row i's (method, sources), made when first read.
+        A quantity already held here is replaced where the new one is present."""
+        v = np.asarray(values, dtype=float).reshape(self.n)
+        s = np.broadcast_to(np.asarray(sigmas, dtype=float), (self.n,))
+        mask = np.isfinite(v) if present is None else np.asarray(present, dtype=bool) & (v == v)
+        old = self._columns.get(name)
+        if old is not None:  # the new values where given, the old ones elsewhere
+            keep = old.present & ~mask
+            if keep.any():
+                old_render, new_render = old.render, render
+
+                def render(i: int, keep: np.ndarray = keep) -> tuple[str, Sequence[str]]:
+                    return old_render(i) if keep[i] else new_render(i)
+
+                v = np.where(keep, old.values, v)
+                s = np.where(keep, old.sigmas, s)
+                mask = mask | keep
+            self._columns[name] = _ValueColumn(v, s, unit, render, mask, old.seq)
+            return
+        self._columns[name] = _ValueColumn(v, s, unit, render, mask, self._next())
+
+    def column(self, name: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, str] | None:
+        """(values, uncertainties, present, unit) of a quantity held column-wise."""
+        c = self._columns.get(name)
+        return None if c is None else (c.values, c.sigmas, c.present, c.unit)
+
+    def names(self) -> list[str]:
+        """The quantities held column-wise, in the order they were first put."""
+        return list(self._columns)
+
+    def row(self, i: int) -> RowValues:
+        return RowValues(self, i)
+
+
+class RowValues(MutableMapping[str, "ComputedValue"]):
+    """One row's computed values: those its table holds column-wise (:class:`TableValues`)
+    and those set for this row alone, as one mapping in the order they were first set."""
+
+    __slots__ = ("_i", "_own", "_t")
+
+    def __init__(self, table: TableValues, i: int) -> None:
+        self._t = table
+        self._i = i
+        self._own: dict[str, tuple[int, ComputedValue]] | None = None
+
+    def __getitem__(self, name: str) -> ComputedValue:
+        own = self._own
+        if own is not None and name in own:
+            return own[name][1]
+        c = self._t._columns.get(name)
+        i = self._i
+        if c is None or not c.present[i]:
+            raise KeyError(name)
+        return ComputedValue.deferred(float(c.values[i]), float(c.sigmas[i]), c.unit,
+                                      c.render, i)
+
+    def __contains__(self, name: object) -> bool:
+        own = self._own
+        if own is not None and name in own:
+            return True
+        c = self._t._columns.get(name)  # type: ignore[arg-type]
+        return c is not None and bool(c.present[self._i])
+
+    def __setitem__(self, name: str, value: ComputedValue) -> None:
+        if self._own is None:
+            self._own = {}
+        old = self._own.get(name)
+        if old is not None:
+            seq = old[0]
+        else:
+            c = self._t._columns.get(name)
+            seq = c.seq if c is not None and c.present[self._i] else self._t._next()
+        self._own[name] = (seq, value)
+
+    def __delitem__(self, name: str) -> None:
+        raise TypeError("computed values are not removed from a row")
+
+    def _keys(self) -> list[str]:
+        i = self._i
+        keyed = [(c.seq, name) for name, c in self._t._columns.items() if c.present[i]]
+        if self._own:
+            held = {name for _, name in keyed}
+            keyed += [(seq, name) for name, (seq, _) in self._own.items() if name not in held]
+            keyed.sort()
+        return [name for _, name in keyed]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._keys())
+
+    def __len__(self) -> int:
+        return len(self._keys())
+
+    def own(self) -> dict[str, ComputedValue]:
+        """The values set for this row alone (not held column-wise)."""
+        return {} if self._own is None else {k: v for k, (_, v) in self._own.items()}
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        # pickled (batch workers) as a plain dict of its values
+        return (dict, (dict(self.items()),))
+
+    def __repr__(self) -> str:
+        return repr(dict(self.items()))
+
+
 @dataclass
 class RowResult:
     """Everything the tool says about one compound row."""
@@ -244,7 +388,8 @@ class RowResult:
     sheet: str
     row: int  # 1-based sheet row
     formula: str | None
-    values: dict[str, ComputedValue] = field(default_factory=dict)
+    # a plain dict, or a row's view (RowValues) of its table's column-wise values
+    values: MutableMapping[str, ComputedValue] = field(default_factory=dict)
     flags: list[Flag] = field(default_factory=list)
     # How the values were made, for writers that emit formulas: the cycle's coefficients and
     # each term's spreadsheet expression (not part of the JSON report).

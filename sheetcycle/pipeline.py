@@ -12,6 +12,7 @@ import math
 import re
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -42,7 +43,6 @@ from sheetcycle.io.tables import ColumnOverride, a1
 from sheetcycle.model import (
     ROW_MARK,
     Column,
-    ComputedValue,
     Flag,
     ReferenceUse,
     RefValue,
@@ -50,6 +50,7 @@ from sheetcycle.model import (
     RunResult,
     Severity,
     Table,
+    TableValues,
     share,
 )
 
@@ -436,13 +437,19 @@ class _TableTrace:
         rows with equal codes have the same formulas but for their own row numbers."""
         if self._codes is None:
             n = self.coefficients.shape[0]
-            parts = [np.unique(self.coefficients, axis=0, return_inverse=True)[1].reshape(n)]
+            parts = [np.unique(c, return_inverse=True)[1].reshape(n)
+                     for c in self.coefficients.T]
             for texts in (*(self.exprs[name] for name in TERMS), self.solved):
                 ids: dict[str | None, int] = {}
                 parts.append(np.fromiter((ids.setdefault(t, len(ids)) for t in texts),
                                          dtype=np.int64, count=n))
-            self._codes = np.unique(np.stack(parts, axis=1), axis=0,
-                                    return_inverse=True)[1].reshape(n).tolist()
+            # one code per distinct combination, pairing the parts one at a time (a
+            # unique over rows of a 2-d array is ten times slower on a large table)
+            code = np.zeros(n, dtype=np.int64)
+            for part in parts:
+                code = np.unique(code * (int(part.max(initial=0)) + 1) + part,
+                                 return_inverse=True)[1].reshape(n)
+            self._codes = code.tolist()
         return self._codes[i]
 
 
@@ -502,6 +509,7 @@ class TableContext:
     ref: ReferenceData
     settings: Settings
     file_flags: list[Flag]
+    values: TableValues  # the rows' values held column-wise (each row's .values views it)
 
 
 @dataclass
@@ -761,7 +769,8 @@ def close_table(
     )
     sol = close_cycles(full, tolerance=settings.tolerance)
     cyc = close_cycles(without_lattice, tolerance=settings.tolerance)
-    rows = _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an, row_flags)
+    rows, store = _row_results(table, ref, settings, terms, sol, cyc, a, b, p, q, cat, an,
+                               row_flags)
     if contexts is not None:
         lat_ok = (cyc.status == CycleStatus.SOLVED) & (cyc.solved == IDX["lattice_enthalpy"])
         contexts.append(
@@ -774,6 +783,7 @@ def close_table(
                 ref,
                 settings,
                 file_flags,
+                store,
             )
         )
     return rows
@@ -874,7 +884,7 @@ def _row_results(
     cat: Sequence[str | None],
     an: Sequence[str | None],
     row_flags: list[list[Flag]],
-) -> list[RowResult]:
+) -> tuple[list[RowResult], TableValues]:
     n = table.n_rows
     fcol = table.column("formula")
     assert fcol is not None and fcol.texts is not None
@@ -910,8 +920,7 @@ def _row_results(
     solved_k = sol.solved.tolist()
     lat_rows = ((cyc.status == CycleStatus.SOLVED) & (cyc.solved == li)).tolist()
     exceeds = sol.exceeds.tolist()
-    no_ions, is_solved, is_closed = (
-        int(CycleStatus.NO_IONS),
+    is_solved, is_closed = (
         int(CycleStatus.SOLVED),
         int(CycleStatus.CLOSED),
     )
@@ -924,84 +933,64 @@ def _row_results(
     )
     notes_lat = _sigma_notes(terms, cyc, n)
     notes_res = _sigma_notes(terms, sol, n)
-    results: list[RowResult] = []
-    for i in range(n):
+    # the values, column-wise: one put per quantity; method words are rendered when read
+    has = np.fromiter((bool(f) for f in fcol.texts), dtype=bool, count=n)
+    has &= sol.status != CycleStatus.NO_IONS
+    closed = has & (sol.status == CycleStatus.CLOSED)
+    solved = has & (sol.status == CycleStatus.SOLVED)
+    store = TableValues(n)
+    store.put("lattice_enthalpy", cyc.value, cyc.sigma, KJ,
+              partial(_cycle_words, _LATTICE_WORDS, notes_lat, terms, "lattice_enthalpy"),
+              present=has & np.asarray(lat_rows, dtype=bool))
+    store.put("closure_residual", sol.residual, sol.residual_sigma, KJ,
+              partial(_cycle_words, _CLOSURE_WORDS, notes_res, terms, None),
+              present=closed)
+    for out_name, names_ in _DERIVED.items():
+        store.put(out_name, sol.value, sol.sigma, KJ,
+                  partial(_derived_words, solved_k, terms),
+                  present=solved & np.isin(sol.solved, [IDX[t] for t in names_]))
+    results = [RowResult(sheet=table.sheet, row=table.first_row + i, formula=fcol.texts[i],
+                         values=store.row(i), flags=row_flags[i]) for i in range(n)]
+    for i in np.nonzero(has)[0].tolist():
+        results[i].trace = _TraceView(shared, i)
+    flagged = (closed & np.asarray(exceeds, dtype=bool)) | solved | (
+        has & ~closed & ~solved)
+    for i in np.nonzero(flagged)[0].tolist():
         formula = fcol.texts[i]
         flags = row_flags[i]
-        rr = RowResult(sheet=table.sheet, row=table.first_row + i, formula=formula, flags=flags)
-        results.append(rr)
-        if not formula:
-            continue
         status = statuses[i]
-        if status == no_ions:
-            continue
         fcell = a1(table.first_row - 1 + i, fcol.col)
-        rr.trace = _TraceView(shared, i)
-        sources_cycle = _sources(terms, i, exclude=("lattice_enthalpy",))
-        if lat_rows[i]:
-            rr.values["lattice_enthalpy"] = ComputedValue(
-                float(cyc.value[i]),
-                float(cyc.sigma[i]),
-                KJ,
-                "Born-Haber cycle: ΔH_L = a·(ΔatH(M) + ΣIE) + b·(ΔatH(X) + ΣΔegH) − ΔfH; "
-                "dissociation convention" + notes_lat[i],
-                tuple(sources_cycle),
-            )
         if status == is_closed:
-            rr.values["closure_residual"] = ComputedValue(
-                float(sol.residual[i]),
-                float(sol.residual_sigma[i]),
-                KJ,
-                "cycle lattice enthalpy minus the given lattice enthalpy" + notes_res[i],
-                tuple(_sources(terms, i)),
+            cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
+            msg = (
+                f"the cycle does not close: from the other terms the lattice enthalpy is "
+                f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
+                f"the residual {sol.residual[i]:+.1f} ± {sol.residual_sigma[i]:.1f} kJ/mol "
+                f"is larger than max(2σ, {settings.tolerance:g} kJ/mol)"
             )
-            if exceeds[i]:
-                cell = a1(table.first_row - 1 + i, lcol.col) if lcol else fcell
-                msg = (
-                    f"the cycle does not close: from the other terms the lattice enthalpy is "
-                    f"{cyc.value[i]:.1f} kJ/mol, the given value is {v[i, li]:.1f} kJ/mol; "
-                    f"the residual {sol.residual[i]:+.1f} ± {sol.residual_sigma[i]:.1f} kJ/mol "
-                    f"is larger than max(2σ, {settings.tolerance:g} kJ/mol)"
+            hint = _residual_hint(
+                names,
+                int(match[i]),
+                int(lat_slip[i]),
+                cat[i],
+                an[i],
+                int(p[i]),
+                int(q[i]),
+                a[i],
+                b[i],
+            )
+            flags.append(
+                Flag(
+                    "cycle-open",
+                    Severity.WARNING,
+                    msg + (f". {hint}" if hint else ""),
+                    table.sheet,
+                    cell,
                 )
-                hint = _residual_hint(
-                    names,
-                    int(match[i]),
-                    int(lat_slip[i]),
-                    cat[i],
-                    an[i],
-                    int(p[i]),
-                    int(q[i]),
-                    a[i],
-                    b[i],
-                )
-                flags.append(
-                    Flag(
-                        "cycle-open",
-                        Severity.WARNING,
-                        msg + (f". {hint}" if hint else ""),
-                        table.sheet,
-                        cell,
-                    )
-                )
+            )
         elif status == is_solved:
-            k = solved_k[i]
-            name = TERMS[k]
-            out_name = {
-                "formation_enthalpy": "formation_enthalpy",
-                "electron_gain_1": "electron_gain_enthalpy",
-                "electron_gain_higher": "electron_gain_enthalpy",
-                "atomization_metal": "atomization_enthalpy",
-                "atomization_nonmetal": "atomization_enthalpy",
-                "ionization": "ionization_energy",
-            }.get(name)
-            if out_name is not None:
-                rr.values[out_name] = ComputedValue(
-                    float(sol.value[i]),
-                    float(sol.sigma[i]),
-                    KJ,
-                    f"Born-Haber cycle solved for the {TERM_LABELS[name]}",
-                    tuple(_sources(terms, i, exclude=(name,))),
-                )
+            name = TERMS[solved_k[i]]
+            if name in _OUT_NAME:
                 flags.append(
                     Flag(
                         "term-derived",
@@ -1030,7 +1019,38 @@ def _row_results(
                     cell,
                 )
             )
-    return results
+    return results, store
+
+
+_LATTICE_WORDS = ("Born-Haber cycle: ΔH_L = a·(ΔatH(M) + ΣIE) + b·(ΔatH(X) + ΣΔegH) − ΔfH; "
+                  "dissociation convention")
+_CLOSURE_WORDS = "cycle lattice enthalpy minus the given lattice enthalpy"
+#: the cycle term a solved row derived -> the name of the value it reports
+_OUT_NAME = {
+    "formation_enthalpy": "formation_enthalpy",
+    "electron_gain_1": "electron_gain_enthalpy",
+    "electron_gain_higher": "electron_gain_enthalpy",
+    "atomization_metal": "atomization_enthalpy",
+    "atomization_nonmetal": "atomization_enthalpy",
+    "ionization": "ionization_energy",
+}
+_DERIVED: dict[str, list[str]] = {}
+for _term, _out in _OUT_NAME.items():
+    _DERIVED.setdefault(_out, []).append(_term)
+
+
+def _cycle_words(method: str, notes: Sequence[str], terms: dict[str, _Term],
+                 exclude: str | None, i: int) -> tuple[str, list[str]]:
+    """Method and sources of a row's cycle lattice enthalpy or closure residual."""
+    return method + notes[i], _sources(terms, i, exclude=() if exclude is None else (exclude,))
+
+
+def _derived_words(solved_k: Sequence[int], terms: dict[str, _Term],
+                   i: int) -> tuple[str, list[str]]:
+    """Method and sources of the term a row's cycle was solved for."""
+    name = TERMS[solved_k[i]]
+    return (f"Born-Haber cycle solved for the {TERM_LABELS[name]}",
+            _sources(terms, i, exclude=(name,)))
 
 
 def _sigma_notes(terms: dict[str, _Term], sol: Any, n: int) -> list[str]:

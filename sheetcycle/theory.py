@@ -36,7 +36,7 @@ from sheetcycle.data.radii import (
 )
 from sheetcycle.engine import lattice_models as lm
 from sheetcycle.io.tables import a1
-from sheetcycle.model import Column, ComputedValue, Flag, Severity, share
+from sheetcycle.model import Column, Flag, Severity, share
 from sheetcycle.pipeline import TableContext
 
 __all__ = ["COMPARISON_ORDER", "DIFFERENCE_SUFFIX", "MODELS", "theory_pass"]
@@ -473,10 +473,17 @@ def theory_pass(ctx: TableContext) -> None:
     # one renderer per model for the whole table: a value keeps only its row index
     words = {m: partial(_model_words, m, rows, models, corr) for m in MODELS}
     diff_words = {m: partial(_difference_words, m, cycle, models, corr) for m in MODELS}
+    ok = np.asarray(rows.ok, dtype=bool)
+    # the values column-wise; the words are written when read (JSON, results workbook)
+    for name in MODELS:
+        ctx.values.put(name, models[name], math.nan, KJ, words[name],
+                       present=ok & np.isfinite(models[name]))
+    for name in MODELS:
+        ctx.values.put(name + DIFFERENCE_SUFFIX, diffs[name], diff_sigma[name], "%",
+                       diff_words[name],
+                       present=ok & np.isfinite(cycle) & np.isfinite(diffs[name]))
     fcol = ctx.table.column("formula")
-    for i in range(n):
-        if not rows.ok[i]:
-            continue
+    for i in np.nonzero(ok)[0].tolist():
         rr = ctx.rows[i]
         fcell = _cell(ctx, i, fcol) if fcol is not None else None
         for label in sorted(missing[i]):
@@ -485,15 +492,8 @@ def theory_pass(ctx: TableContext) -> None:
                 f"no ionic radius for {label} in Shannon's table and no radius column value: "
                 "no model that needs it (Kapustinskii; Born-Landé and Born-Mayer unless r0 is "
                 "given or follows from the density)", ctx.table.sheet, fcell))
-        for name in MODELS:
-            u = float(models[name][i])
-            if not math.isfinite(u):
-                continue
-            # the words are written when read (JSON, results workbook), not for every row
-            rr.values[name] = ComputedValue.deferred(u, math.nan, KJ, words[name], i)
         if math.isfinite(cycle[i]):
-            _compare(ctx, rows, i, models, corr, cycle, diffs, diff_sigma, fcell, flags, pick,
-                         diff_words)
+            _compare(ctx, rows, i, models, corr, cycle, fcell, flags, pick)
         if math.isfinite(spread_pct[i]) and spread_pct[i] > ctx.settings.model_spread:
             have = {m: float(models[m][i]) for m in MODELS if math.isfinite(models[m][i])}
             hi = max(have, key=have.__getitem__)
@@ -546,18 +546,10 @@ def _difference_words(name: str, cycle: FloatArray, models: dict[str, FloatArray
 
 
 def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArray],
-             corr: FloatArray, cycle: FloatArray, diffs: dict[str, FloatArray],
-             diff_sigma: dict[str, FloatArray], fcell: str | None,
+             corr: FloatArray, cycle: FloatArray, fcell: str | None,
              flags: list[list[Flag]],
-             pick: Sequence[tuple[str | None, float, bool]],
-             diff_words: dict[str, partial[tuple[str, tuple[str, ...]]]]) -> None:
-    rr = ctx.rows[i]
-    for name in MODELS:
-        d = float(diffs[name][i])
-        if not math.isfinite(d):
-            continue
-        rr.values[name + DIFFERENCE_SUFFIX] = ComputedValue.deferred(
-            d, float(diff_sigma[name][i]), "%", diff_words[name], i)
+             pick: Sequence[tuple[str | None, float, bool]]) -> None:
+    """The covalent-character flag of one row whose cycle value is known."""
     chosen, d, alone = pick[i]
     if chosen is None or not d > ctx.settings.covalent_threshold:
         return

@@ -23,6 +23,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from sheetcycle.engine.born_haber import TERMS
 from sheetcycle.errors import WriteError
 from sheetcycle.io.cells import SheetCells, WorkbookCells
@@ -37,7 +39,7 @@ from sheetcycle.io.package import (
     write_annotated,
 )
 from sheetcycle.io.tables import a1
-from sheetcycle.model import ROW_MARK, Flag, RowResult, RunResult, Severity, Table
+from sheetcycle.model import ROW_MARK, Flag, RowResult, RowValues, RunResult, Severity, Table
 
 __all__ = [
     "FLAGS_SHEET",
@@ -220,6 +222,48 @@ def _plan_function_cells(run: RunResult, book: WorkbookCells, plan: AnnotationPl
 # --- end of issue 5 block ------------------------------------------------------------
 
 
+def _value_columns(
+    rows: Sequence[RowResult | None],
+) -> dict[str, tuple[list[float | None], list[float | None], str]]:
+    """Every computed quantity of a table's rows, column-wise:
+    {name: (values, uncertainties, unit)}, None where a row has no number.
+
+    Rows whose values are views of one :class:`TableValues` are read from its arrays; the
+    values set row by row (and rows holding a plain dict) are put over them one by one."""
+    n = len(rows)
+    out: dict[str, tuple[list[float | None], list[float | None], str]] = {}
+    store = None
+    first = next((r for r in rows if r is not None), None)
+    if first is not None and isinstance(first.values, RowValues):
+        store = first.values._t
+        if not all(r is not None and isinstance(r.values, RowValues) and r.values._t is store
+                   and r.values._i == i for i, r in enumerate(rows)):
+            store = None
+    if store is not None:
+        for name in store.names():
+            col = store.column(name)
+            assert col is not None
+            values, sigmas, present, unit = col
+            if not present.any():
+                continue
+            v = np.where(present, values, np.nan).tolist()
+            u = np.where(present, sigmas, np.nan).tolist()
+            out[name] = ([None if x != x else x for x in v],
+                         [None if x != x else x for x in u], unit)
+    for i, r in enumerate(rows):
+        if r is None:
+            continue
+        own = r.values.own() if store is not None else r.values  # type: ignore[attr-defined]
+        for name, cv in own.items():
+            col = out.get(name)
+            if col is None:
+                col = out[name] = ([None] * n, [None] * n, cv.unit)
+            value, unc = float(cv.value), float(cv.uncertainty)
+            col[0][i] = None if value != value else value
+            col[1][i] = None if unc != unc else unc
+    return out
+
+
 def _table_columns(
     table: Table,
     rows: Sequence[RowResult | None],
@@ -227,8 +271,9 @@ def _table_columns(
     refs: Callable[[str, str, int], str],
     plan: AnnotationPlan,
 ) -> SheetAddition | None:
-    names = [n for n in VALUE_HEADINGS if any(r is not None and n in r.values for r in rows)]
-    extra = sorted({n for r in rows if r is not None for n in r.values} - set(VALUE_HEADINGS))
+    quantities = _value_columns(rows)
+    names = [n for n in VALUE_HEADINGS if n in quantities]
+    extra = sorted(set(quantities) - set(VALUE_HEADINGS))
     if not names and not extra and not any(r is not None and r.flags for r in rows):
         return None
     start = _last_used_col(sheet, table.header_row - 1, table.last_row - 1) + 2
@@ -244,33 +289,26 @@ def _table_columns(
     templates: dict[tuple[Any, ...], str | None] = {}  # (value, trace signature) -> formula
     for key in layout:
         name, part = key
-        numbers: list[float | None] = []
-        formulas: list[str | None] | None = [] if part == "value" else None
-        letters = a1(0, col_of[key])[:-1]
-        for i, r in enumerate(rows):
-            v = r.values.get(name) if r is not None else None
-            number = None if v is None else (v.value if part == "value" else v.uncertainty)
-            if number is None or number != number:  # missing, NaN
-                numbers.append(None)
-                if formulas is not None:
-                    formulas.append(None)
-                continue
-            number = float(number)
-            numbers.append(number)
-            if formulas is None:
-                continue
-            formula = None
-            if r is not None and r.trace:
+        values, uncertainties, unit = quantities[name]
+        numbers = values if part == "value" else uncertainties
+        formulas: list[str | None] | None = None
+        if part == "value":
+            formulas = [None] * len(rows)
+            letters = a1(0, col_of[key])[:-1]
+            for i, number in enumerate(numbers):
+                r = rows[i]
+                if number is None or r is None or not r.trace:
+                    continue
                 formula = _row_formula(name, r, table.first_row + i, col_of, refs, templates)
-            formulas.append(formula)
-            if formula is not None:
-                plan.formulas.append((table.sheet, f"{letters}{table.first_row + i}", formula,
-                                      number))
-        heading = VALUE_HEADINGS.get(name, _heading_of(name, rows))
+                if formula is not None:
+                    formulas[i] = formula
+                    plan.formulas.append((table.sheet, f"{letters}{table.first_row + i}",
+                                          formula, number))
+            if all(f is None for f in formulas):
+                formulas = None
+        heading = VALUE_HEADINGS.get(name) or _heading_of(name, unit)
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
-        if formulas is not None and not any(f is not None for f in formulas):
-            formulas = None
         columns.append(AddedColumn(heading, ColumnCells(numbers, formulas, "number"),
                                    number_format="0.0"))
     texts: list[str | None] = []
@@ -295,8 +333,7 @@ def _table_columns(
     )
 
 
-def _heading_of(name: str, rows: Sequence[RowResult | None]) -> str:
-    unit = next((r.values[name].unit for r in rows if r is not None and name in r.values), "")
+def _heading_of(name: str, unit: str) -> str:
     label = name.replace("_", " ")
     return f"{label} / {unit}" if unit else label
 
