@@ -37,6 +37,7 @@ from sheetcycle.io.package_xml import (
 __all__ = ["ColumnJob", "SheetJob", "SheetRewriter", "find_cell_styles", "scan_tail"]
 
 CHUNK = 4 * 1024 * 1024
+_FAST_ROWS = 4096  # block rows whose added cells are made at once, a column at a time
 _HUGE = 1.7976931348623157e308  # largest finite double
 _INF = 1 << 62
 
@@ -249,6 +250,15 @@ class SheetRewriter:
                 merged.append([a, b])
         self._starts = [a for a, _ in merged]
         self._ends = [b for _, b in merged]
+        # Rows of a block that no other block or header row shares get their added cells
+        # made a column at a time, a chunk of rows at once (_fast_adds); others cell by cell.
+        blocks = sorted((first, first + n, k) for k, (first, n, _) in enumerate(job.blocks) if n)
+        disjoint = all(a[1] <= b[0] for a, b in zip(blocks, blocks[1:]))
+        clear = not any(a <= r < b for r in job.header_rows for a, b, _ in blocks)
+        self._fast = blocks if disjoint and clear else []
+        self._fast_starts = [a for a, _, _ in self._fast]
+        self._chunk_key: tuple[int, int] | None = None
+        self._chunk: list[tuple[str, int, int]] = []
 
     def _set_patterns(self) -> None:
         p = self.p
@@ -258,6 +268,7 @@ class SheetRewriter:
         self._c_empty = b"<" + p + b"c/>"
         self._r_letters = re.compile(rb"<" + re.escape(p) + rb"c\s[^>]*?\br=\"\$?([A-Za-z]+)")
         self._col_memo: dict[bytes, int] = {}
+        self._ref_letters: dict[int, bytes] = {}
 
     # --- which rows get something ---------------------------------------------------
 
@@ -330,6 +341,123 @@ class SheetRewriter:
             out.sort(key=lambda t: t[0])
         return out
 
+    def _fast_adds(self, r: int) -> tuple[str, int, int] | None:
+        """(the added cells' XML, first col, last col) of row ``r`` made column-wise ('', -1,
+        -1 when it gets none); None when the row needs :meth:`adds_for` (a header row, rows
+        two blocks share, a note on an added cell)."""
+        k = bisect.bisect_right(self._fast_starts, r) - 1
+        if k < 0:
+            return None
+        first, end, b = self._fast[k]
+        if r >= end:
+            return None
+        notes = self.job.notes.get(r)
+        if notes and any(c in self.add_cols for c in notes):
+            return None
+        lo = (r - first) // _FAST_ROWS * _FAST_ROWS
+        if self._chunk_key != (b, lo):
+            self._chunk = self._make_chunk(b, first, lo, min(lo + _FAST_ROWS, end - first))
+            self._chunk_key = (b, lo)
+        return self._chunk[r - first - lo]
+
+    def _make_chunk(self, b: int, first: int, lo: int, hi: int) -> list[tuple[str, int, int]]:
+        cols = sorted(self.job.blocks[b][2], key=lambda c: c.col)
+        lists = [self._column_xml(col, first, lo, hi) for col in cols]
+        idx = [c.col for c in cols]
+        out: list[tuple[str, int, int]] = []
+        for parts in zip(*lists, strict=True):
+            j0 = 0
+            while j0 < len(parts) and not parts[j0]:
+                j0 += 1
+            if j0 == len(parts):
+                out.append(("", -1, -1))
+                continue
+            j1 = len(parts) - 1
+            while not parts[j1]:
+                j1 -= 1
+            out.append(("".join(parts), idx[j0], idx[j1]))
+        return out
+
+    def _column_xml(self, col: ColumnJob, first: int, lo: int, hi: int) -> list[str]:
+        """The XML of one added column's cells for block rows lo..hi-1 ('' for none)."""
+        p = self._ps
+        letters = self._letters[col.col]
+        cells = col.cells
+        if type(cells) is ColumnCells:
+            values = cells.values[lo:hi]
+            formulas = cells.formulas[lo:hi] if cells.formulas is not None else [None] * (hi - lo)
+            style = cells.style
+            styles = ([style] * (hi - lo) if style is None or isinstance(style, str)
+                      else style[lo:hi])
+        else:
+            got = [cells[i] for i in range(lo, hi)]  # type: ignore[index]
+            values = [c.value for c in got]
+            formulas = [c.formula for c in got]
+            styles = [c.style for c in got]
+        sa = self._plain_s.get(col.col)
+        if sa is None:
+            s = self._style(col, None, True)
+            sa = self._plain_s[col.col] = f' s="{s}"' if s else ""
+        head = f'<{p}c r="{letters}'
+        out: list[str] = []
+        for r, value, formula, style in zip(range(first + lo, first + hi), values, formulas,
+                                            styles, strict=True):
+            if value is None and formula is None:
+                out.append("")
+            elif (type(value) is float and (style is None or style == "number")
+                  and -_HUGE < value < _HUGE):
+                if formula is None:
+                    out.append(f'{head}{r}"{sa}><{p}v>{value!r}</{p}v></{p}c>')
+                elif _NEEDS_ESCAPE.search(formula) is None:
+                    out.append(f'{head}{r}"{sa}><{p}f>{formula}</{p}f>'
+                               f"<{p}v>{value!r}</{p}v></{p}c>")
+                else:
+                    out.append(cell_xml(p, f"{letters}{r}", self._style(col, style, True),
+                                        value, formula))
+            else:
+                numeric = formula is not None or (value is not None and not isinstance(value, str))
+                out.append(cell_xml(p, f"{letters}{r}", self._style(col, style, numeric),
+                                    value, formula))
+        return out
+
+    def _fill_notes(self, body: bytes, tail_pos: int, notes: dict[int, str],
+                    r: int) -> bytes | None:
+        """The row body with the noted cells' fills, found by their references; None when a
+        noted cell is not there (or has no reference), so that the full merge must run."""
+        p = self.p
+        found: list[tuple[int, int, bytes]] = []
+        for col in sorted(notes):
+            k = body.find(b' r="' + self._ref(col, r) + b'"', 0, tail_pos)
+            if k < 0:
+                return None
+            ts = body.rfind(b"<", 0, k)
+            if ts < 0 or body.find(b">", ts, k) >= 0 or not body.startswith(b"<" + p + b"c", ts):
+                return None
+            te = body.find(b">", k) + 1
+            if te <= 0:
+                return None
+            tag = body[ts:te]
+            if not (tag[len(p) + 2:len(p) + 3].isspace()):
+                return None
+            old = attr(tag, b"s")
+            s = self.styler.styles.with_fill(int(old) if old else None, notes[col])
+            found.append((ts, te, set_attr(tag, b"s", str(s).encode())))
+        found.sort()
+        out: list[bytes] = []
+        pos = 0
+        for ts, te, tag in found:
+            out.append(body[pos:ts])
+            out.append(tag)
+            pos = te
+        out.append(body[pos:])
+        return b"".join(out)
+
+    def _ref(self, col: int, r: int) -> bytes:
+        letters = self._ref_letters.get(col)
+        if letters is None:
+            letters = self._ref_letters[col] = col_letters(col).encode()
+        return letters + str(r).encode()
+
     # --- rows ---------------------------------------------------------------------
 
     def new_row(self, r: int) -> bytes:
@@ -349,7 +477,6 @@ class SheetRewriter:
 
     def edit_row(self, attrs: bytes, body: bytes | None, r: int) -> bytes:
         p = self.p
-        found = [t for t in self.adds_for(r) if t[1]]
         notes = self.job.notes.get(r)
         if body is None:
             body = b""
@@ -357,6 +484,27 @@ class SheetRewriter:
         if tail_pos < 0:
             tail_pos = len(body)
         updates = self.job.updates.get(r)
+        fast = None if updates else self._fast_adds(r)
+        if fast is not None:  # the added cells made column-wise; existing cells left of them
+            xml, lo, hi = fast
+            last = self._last_col(body)
+            new_body: bytes | None = None
+            if last is not None and (not xml or last < lo):
+                new_body = body if not notes else self._fill_notes(body, tail_pos, notes, r)
+            if new_body is not None:
+                if xml:
+                    added = xml.encode()
+                    if tail_pos == len(body):
+                        new_body += added
+                    else:  # before the row's extLst (the fills may have moved it)
+                        at = new_body.find(self._ext)
+                        new_body = new_body[:at] + added + new_body[at:]
+                if self._shared.active(r) and b"si=" in new_body:
+                    new_body = self._promote(new_body, r)
+                if xml:
+                    attrs = self._spans(attrs, lo, hi)
+                return b"<" + p + b"row" + attrs + b">" + new_body + b"</" + p + b"row>"
+        found = [t for t in self.adds_for(r) if t[1]]
         cells_needed = bool(notes) or bool(updates)
         if found and not cells_needed:
             last = self._last_col(body)
