@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import pickle
+import re
 import zipfile
 from pathlib import Path
 
@@ -17,7 +18,14 @@ import pytest
 import xlsxwriter
 
 from sheetcycle.io import package_sheet
-from sheetcycle.io.package import AddedColumn, CellNote, ColumnCells, SheetAddition, write_annotated
+from sheetcycle.io.package import (
+    AddedCell,
+    AddedColumn,
+    CellNote,
+    ColumnCells,
+    SheetAddition,
+    write_annotated,
+)
 from sheetcycle.model import ComputedValue, RowValues, TableValues
 
 
@@ -110,6 +118,9 @@ def _annotation(rows: int) -> tuple[list[SheetAddition], list[CellNote]]:
         AddedColumn("v", ColumnCells(values, formulas, "number"), number_format="0.0"),
         AddedColumn("w", ColumnCells(big, None, "number"), number_format="0.0"),
         AddedColumn("flags", ColumnCells(texts, None, styles), number_format=None),
+        # a list of AddedCells: its blanks keep their format (a styled empty cell)
+        AddedColumn("listed", [AddedCell(None if r % 2 else r / 3, None, "number")
+                               for r in range(2, rows + 2)], number_format="0.000"),
     ]
     notes = []
     for r in range(2, rows + 2, 9):  # on filled cells, empty cells and an added cell
@@ -145,3 +156,4 @@ def test_column_wise_cells_equal_cell_by_cell(tmp_path: Path, monkeypatch: pytes
     with zipfile.ZipFile(fast) as a:
         sheet = a.read("xl/worksheets/sheet1.xml")
     assert b'<c r="E2" s="' in sheet and b"<f>B2*2</f>" in sheet  # the check sees cells
+    assert re.search(rb'<c r="H3" s="\d+"/>', sheet)  # the listed column's blank, formatted

@@ -302,40 +302,20 @@ class SheetRewriter:
             if first <= r < first + n:
                 i = r - first
                 for col in cols:
+                    if not (notes and col.col in notes):  # made as the column-wise path does
+                        out.append((col.col, self._column_xml(col, first, i, i + 1)[0]))
+                        continue
                     cells = col.cells
                     if type(cells) is ColumnCells:
                         value, formula, style = cells.at(i)
-                        if value is None and formula is None and not (notes and col.col in notes):
-                            continue  # nothing to write
                     else:
                         cell = cells[i]  # type: ignore[index]
                         value, formula, style = cell.value, cell.formula, cell.style
-                    if (  # the common case inline: a finite number, a plain format, no note
-                        type(value) is float
-                        and (style is None or style == "number")
-                        and not (notes and col.col in notes)
-                        and -_HUGE < value < _HUGE
-                        and (formula is None or _NEEDS_ESCAPE.search(formula) is None)
-                    ):
-                        sa = self._plain_s.get(col.col)
-                        if sa is None:
-                            s = self._style(col, None, True)
-                            sa = self._plain_s[col.col] = f' s="{s}"' if s else ""
-                        f = "" if formula is None else f"<{p}f>{formula}</{p}f>"
-                        out.append(
-                            (
-                                col.col,
-                                f'<{p}c r="{letters[col.col]}{r}"{sa}>{f}'
-                                f"<{p}v>{value!r}</{p}v></{p}c>",
-                            )
-                        )
-                        continue
                     numeric = formula is not None or (
                         value is not None and not isinstance(value, str)
                     )
-                    s = self._style(col, style, numeric)
-                    if notes and col.col in notes:
-                        s = self.styler.styles.with_fill(s, notes[col.col])
+                    s = self.styler.styles.with_fill(self._style(col, style, numeric),
+                                                     notes[col.col])
                     out.append((col.col, cell_xml(p, f"{letters[col.col]}{r}", s, value, formula)))
         if len(out) > 1 and any(out[k][0] > out[k + 1][0] for k in range(len(out) - 1)):
             out.sort(key=lambda t: t[0])
@@ -399,10 +379,13 @@ class SheetRewriter:
             s = self._style(col, None, True)
             sa = self._plain_s[col.col] = f' s="{s}"' if s else ""
         head = f'<{p}c r="{letters}'
+        # a blank of a column-wise column is left out; one in a list of AddedCells keeps
+        # its format (cell_xml writes a styled empty cell)
+        skip_blank = type(cells) is ColumnCells
         out: list[str] = []
         for r, value, formula, style in zip(range(first + lo, first + hi), values, formulas,
                                             styles, strict=True):
-            if value is None and formula is None:
+            if value is None and formula is None and skip_blank:
                 out.append("")
             elif (type(value) is float and (style is None or style == "number")
                   and -_HUGE < value < _HUGE):
