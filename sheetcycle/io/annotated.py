@@ -18,7 +18,7 @@ users' formulas) against the engine's value before anything is written.
 from __future__ import annotations
 
 import re
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -38,6 +38,7 @@ from sheetcycle.io.package import (
     SheetAddition,
     write_annotated,
 )
+from sheetcycle.io.formula_check import FormulaColumn
 from sheetcycle.io.tables import a1
 from sheetcycle.model import ROW_MARK, Flag, RowResult, RowValues, RunResult, Severity, Table
 
@@ -88,10 +89,19 @@ class AnnotationPlan:
     additions: list[SheetAddition] = field(default_factory=list)
     notes: list[CellNote] = field(default_factory=list)
     new_sheets: list[NewSheet] = field(default_factory=list)
-    formulas: list[tuple[str, str, str, float]] = field(default_factory=list)  # sheet, cell, f, v
+    # formulas made from a row template, a group of cells per template and column
+    formula_columns: list[FormulaColumn] = field(default_factory=list)
+    # formulas of their own: (sheet, cell, formula, value)
+    formulas: list[tuple[str, str, str, float]] = field(default_factory=list)
     # --- issue 5: existing cells that use sheetcycle's worksheet functions: their values,
     # cached under the formula, or (functions_as_values) written in place of it ---
     cell_values: list[CellValue] = field(default_factory=list)
+
+    def all_formulas(self) -> Iterator[tuple[str, str, str, float]]:
+        """Every emitted formula as (sheet, cell, formula, the engine's value)."""
+        for column in self.formula_columns:
+            yield from column.cells()
+        yield from self.formulas
 
 
 def _q(sheet: str) -> str:
@@ -295,15 +305,29 @@ def _table_columns(
         if part == "value":
             formulas = [None] * len(rows)
             letters = a1(0, col_of[key])[:-1]
+            shared: dict[str, FormulaColumn] = {}  # template -> its cells in this column
             for i, number in enumerate(numbers):
                 r = rows[i]
                 if number is None or r is None or not r.trace:
                     continue
-                formula = _row_formula(name, r, table.first_row + i, col_of, refs, templates)
-                if formula is not None:
-                    formulas[i] = formula
-                    plan.formulas.append((table.sheet, f"{letters}{table.first_row + i}",
-                                          formula, number))
+                sheet_row = table.first_row + i
+                template = _row_template(name, r, col_of, refs, templates)
+                if template == "":  # no signature: a formula of its own
+                    formula = _value_formula(name, r.trace, sheet_row, col_of, refs)
+                    if formula is not None:
+                        formulas[i] = formula
+                        plan.formulas.append((table.sheet, f"{letters}{sheet_row}",
+                                              formula, number))
+                    continue
+                if template is None:
+                    continue
+                formulas[i] = template.replace(ROW_MARK, str(sheet_row))
+                group = shared.get(template)
+                if group is None:
+                    group = shared[template] = FormulaColumn(table.sheet, col_of[key], template)
+                    plan.formula_columns.append(group)
+                group.rows.append(sheet_row)
+                group.expected.append(number)
             if all(f is None for f in formulas):
                 formulas = None
         heading = VALUE_HEADINGS.get(name) or _heading_of(name, unit)
@@ -338,25 +362,25 @@ def _heading_of(name: str, unit: str) -> str:
     return f"{label} / {unit}" if unit else label
 
 
-def _row_formula(
+def _row_template(
     name: str,
     r: RowResult,
-    sheet_row: int,
     col_of: Mapping[tuple[str, str], int],
     refs: Callable[[str, str, int], str],
     templates: dict[tuple[Any, ...], str | None],
 ) -> str | None:
-    """The formula of one computed cell: made once per distinct row signature (rows whose
-    cycles differ only in their row numbers) and given this row's number."""
+    """The formula template (ROW_MARK for the row) of one computed cell, made once per
+    distinct row signature (rows whose cycles differ only in their row numbers); None when
+    the value has no formula, "" when the row's trace has no signature (a plain mapping)."""
     signature = getattr(r.trace, "signature", None)
-    if signature is None:  # a trace held as a plain mapping
-        return _value_formula(name, r.trace, sheet_row, col_of, refs)
+    if signature is None:
+        return ""
     key = (name, signature())
     template = templates.get(key, "")
     if template == "":
         template = templates[key] = _value_formula(name, r.trace.templates(), ROW_MARK,
                                                    col_of, refs)
-    return template if template is None else template.replace(ROW_MARK, str(sheet_row))
+    return template
 
 
 def _value_formula(
@@ -575,16 +599,22 @@ def write_annotated_copy(
 
 
 def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1e-9) -> None:
-    """Evaluate every planned formula with ``formulas`` and compare with the engine's value.
+    """Evaluate every planned formula and compare it with the engine's value.
 
-    Formulas of the same shape (the same text once row numbers and reference rows are
-    abstracted) are compiled once and evaluated on arrays. A mismatch is a bug in the tool,
-    so it stops the write with an error rather than handing out a wrong formula.
+    The cells that share a row template are checked a column at a time
+    (:func:`~sheetcycle.io.formula_check.check_formula_columns`); what that leaves, and
+    the formulas of their own, go through the evaluator that reads users' formulas, which
+    compiles each shape once with ``formulas`` and evaluates it on arrays. A mismatch is a
+    bug in the tool, so it stops the write with an error rather than handing out a wrong
+    formula.
     """
-    from sheetcycle.io.formula_check import check_formulas
+    from sheetcycle.io.formula_check import check_formula_columns, check_formulas
 
-    values = _added_values(plan)
-    problems = check_formulas(plan.formulas, book, values, rel=rel)
+    problems, rest = check_formula_columns(plan.formula_columns, book, _new_sheet_values(plan),
+                                           rel=rel)
+    rest += plan.formulas
+    if rest:
+        problems += check_formulas(rest, book, _added_values(plan), rel=rel)
     if problems:
         first = problems[0]
         raise WriteError(
@@ -592,6 +622,17 @@ def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1
             f"(={first[2]}) gives {first[4]!r}, the engine {first[3]!r}; "
             f"{len(problems)} formula(s) disagree; nothing was written"
         )
+
+
+def _new_sheet_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
+    """Values of the cells of the tool's new sheets (the reference values among them)."""
+    out: dict[tuple[str, int, int], object] = {}
+    for sheet in plan.new_sheets:
+        for r, row in enumerate(sheet.rows):
+            for c, cell in enumerate(row):
+                if cell is not None and cell.value is not None:
+                    out[(sheet.name, r, c)] = cell.value
+    return out
 
 
 def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
@@ -614,9 +655,5 @@ def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
             for i, v in enumerate(values):
                 if v is not None:
                     out[(add.sheet, r0 + i, c)] = v
-    for sheet in plan.new_sheets:
-        for r, row in enumerate(sheet.rows):
-            for c, cell in enumerate(row):
-                if cell is not None and cell.value is not None:
-                    out[(sheet.name, r, c)] = cell.value
+    out.update(_new_sheet_values(plan))
     return out

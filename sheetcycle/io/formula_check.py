@@ -13,11 +13,14 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
 
 from sheetcycle.io.cells import WorkbookCells
+from sheetcycle.model import ROW_MARK
 
-__all__ = ["check_formulas", "formula_shape"]
+__all__ = ["FormulaColumn", "check_formula_columns", "check_formulas", "formula_shape"]
 
 _REF = re.compile(
     r"(?:'((?:[^']|'')+)'|([A-Za-z_][A-Za-z0-9_.]*))?(!)?\$?([A-Z]{1,3})\$?(\d+)(?![\w(])"
@@ -119,3 +122,153 @@ def check_formulas(
         if not (abs(value - expected) <= rel * scale):
             problems.append((sheet, cell, formula, expected, value))
     return problems
+
+
+@dataclass
+class FormulaColumn:
+    """Cells of one added column that share one formula template.
+
+    ``template`` holds :data:`sheetcycle.model.ROW_MARK` where each cell's own sheet row
+    goes; ``rows`` are those 1-based sheet rows and ``expected`` the engine's values, in
+    the same order.
+    """
+
+    sheet: str
+    col: int  # 0-based
+    template: str
+    rows: list[int] = field(default_factory=list)
+    expected: list[float] = field(default_factory=list)
+
+    def cells(self) -> Iterator[tuple[str, str, str, float]]:
+        """(sheet, A1 cell, formula, expected) of every cell, as :func:`check_formulas`
+        takes them."""
+        from sheetcycle.io.tables import a1
+
+        letters = a1(0, self.col)[:-1]
+        for row, value in zip(self.rows, self.expected, strict=True):
+            yield (self.sheet, f"{letters}{row}",
+                   self.template.replace(ROW_MARK, str(row)), value)
+
+
+def _column_order(columns: Sequence[FormulaColumn],
+                  points_at: Mapping[int, set[tuple[str, int]]]) -> list[int] | None:
+    """Indices of ``columns`` so that a template comes after every column it points at;
+    None when they point at each other (or a column at itself)."""
+    left = list(range(len(columns)))
+    order: list[int] = []
+    while left:
+        pending = {(columns[j].sheet, columns[j].col) for j in left}
+        ready = [i for i in left if not points_at[i] & pending]
+        if not ready:
+            return None
+        order.extend(ready)
+        left = [i for i in left if i not in set(ready)]
+    return order
+
+
+def check_formula_columns(
+    columns: Sequence[FormulaColumn],
+    book: WorkbookCells,
+    extra: Mapping[tuple[str, int, int], object],
+    *,
+    rel: float = 1e-9,
+) -> tuple[list[tuple[str, str, str, float, float]], list[tuple[str, str, str, float]]]:
+    """Check whole template columns at once: (disagreements, cells left to check one by one).
+
+    Each template is tokenized twice, at its first two rows, by the evaluator's own
+    tokenizer; the references whose row moves with the cell's row are then read a column
+    at a time, the others once, and a template of + - * /, ABS and parentheses is
+    evaluated on arrays (the evaluator's own fast path). The cells of a template that does
+    not fit (ranges, functions, text inputs, error values, a result that is not finite)
+    are handed back to be checked by :func:`check_formulas`, whose answers are the
+    reference. ``extra`` gives the values of the tool's new sheets (the reference cells);
+    added formula columns are read from this check's own results.
+    """
+    import numpy as np
+
+    from sheetcycle.io.evaluate import _arithmetic, _arithmetic_order, _get, _make_target
+
+    grids = _grids(book, extra, {name for name, _, _ in extra})
+    names = list(grids)
+    lookup = {n.upper(): i for i, n in enumerate(names)}
+    glist = [grids[n] for n in names]
+    extents = [(len(g), max((len(r) for r in g), default=0)) for g in glist]
+    shapes: dict[str, Any] = {}
+    problems: list[tuple[str, str, str, float, float]] = []
+    one_by_one: list[tuple[str, str, str, float]] = []
+    # per template: (shape, [(sheet index, row offset or None, fixed row, col)]) or None
+    plans: list[Any] = []
+    points_at: dict[int, set[tuple[str, int]]] = {}
+    for k, column in enumerate(columns):
+        points_at[k] = set()
+        plans.append(None)
+        if column.sheet.upper() not in lookup or not column.rows:
+            continue
+        si = lookup[column.sheet.upper()]
+        samples = [_make_target(si, row - 1, column.col,
+                                column.template.replace(ROW_MARK, str(row)), lookup,
+                                extents, shapes)
+                   for row in column.rows[:2]]
+        first = samples[0]
+        if (first.problem is not None or not first.single
+                or any(s.shape != first.shape or len(s.refs) != len(first.refs)
+                       for s in samples)):
+            continue
+        refs = []
+        for j, (s, r1, c1, r2, c2) in enumerate(first.refs):
+            if r1 != r2 or c1 != c2:
+                break
+            offset = r1 - (column.rows[0] - 1)
+            moves = len(samples) > 1 and samples[1].refs[j][1] != r1
+            if moves and samples[1].refs[j][1] - (column.rows[1] - 1) != offset:
+                break
+            refs.append((s, offset if moves else None, r1, c1))
+            points_at[k].add((names[s], c1))
+        else:
+            plans[k] = (first.shape, refs)
+    order = _column_order(columns, points_at)
+    if order is None:  # columns that point at each other: the evaluator's own ordering
+        return [], [cell for column in columns for cell in column.cells()]
+    computed: dict[tuple[str, int], dict[int, object]] = {}
+    for k in order:
+        column = columns[k]
+        results = computed.setdefault((column.sheet, column.col), {})
+        plan = plans[k]
+        cells = list(column.cells())
+        arith = None if plan is None else _arithmetic_order(plan[0])
+        if plan is None or arith is None:
+            one_by_one.extend(cells)
+            continue
+        shape, refs = plan
+        rows0 = [row - 1 for row in column.rows]
+        raw = []
+        unchecked = np.zeros(len(rows0), dtype=bool)  # reads a cell this check left open
+        for j in arith:
+            s, offset, fixed, c = refs[j]
+            mine = computed.get((names[s], c))
+            grid = glist[s]
+            if mine is None:
+                raw.append([_get(grid, fixed, c)] * len(rows0) if offset is None
+                           else [_get(grid, r + offset, c) for r in rows0])
+                continue
+            got_here = ([mine.get(fixed)] * len(rows0) if offset is None
+                        else [mine.get(r + offset) for r in rows0])
+            unchecked |= np.array([v is None for v in got_here], dtype=bool)
+            raw.append([0.0 if v is None else v for v in got_here])
+        got = _arithmetic(shape, arith, raw, np, len(rows0))
+        if got is None:
+            one_by_one.extend(cells)
+            continue
+        expected = np.asarray(column.expected, dtype=float)
+        finite = np.isfinite(got) & ~unchecked
+        bad = finite & ~(np.abs(got - expected) <= rel * np.maximum(np.abs(expected), 1.0))
+        for n in np.flatnonzero(bad).tolist():
+            sheet, cell, formula, value = cells[n]
+            problems.append((sheet, cell, formula, value, float(got[n])))
+        for n in np.flatnonzero(~finite).tolist():
+            one_by_one.append(cells[n])
+        values = got.tolist()
+        for n, r in enumerate(rows0):
+            if finite[n]:
+                results[r] = values[n]
+    return problems, one_by_one
