@@ -24,7 +24,7 @@ from __future__ import annotations
 import re
 import time
 import zipfile
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -711,6 +711,8 @@ class _Out:
         info.compress_type = like.compress_type if like else zipfile.ZIP_DEFLATED
         if like is not None:
             info.external_attr = like.external_attr
+        if len(data) > 1024 * 1024:  # big parts (flags sheet, notes): fast deflate (level 1)
+            info._compresslevel = 1  # type: ignore[attr-defined]
         self.zout.writestr(info, data)
 
     def stream(self, job: SheetJob, like: zipfile.ZipInfo, styler: CellStyler, file: str) -> None:
@@ -723,7 +725,46 @@ class _Out:
         big = like.file_size + 120 * n_new > 2 * 1024**3
         rewriter = SheetRewriter(job, styler, file)
         with self.zin.open(like) as src, self.zout.open(info, "w", force_zip64=big) as dst:
-            rewriter.run(src, dst.write)
+            with _Deflating(dst.write) as write:
+                rewriter.run(src, write)
+
+
+class _Deflating:
+    """Hand the rewritten sheet's chunks to a thread that compresses and writes them, so
+    that deflating one chunk (zlib lets go of the interpreter lock) overlaps making the
+    next. The chunks keep their order; an error in the thread is raised here."""
+
+    def __init__(self, write: Callable[[bytes], object]) -> None:
+        import queue
+        import threading
+
+        self._write = write
+        self._queue: queue.Queue[bytes | None] = queue.Queue(maxsize=2)
+        self._error: BaseException | None = None
+        self._thread = threading.Thread(target=self._drain, daemon=True)
+
+    def _drain(self) -> None:
+        while (chunk := self._queue.get()) is not None:
+            if self._error is None:
+                try:
+                    self._write(chunk)
+                except BaseException as exc:  # handed to the writing thread
+                    self._error = exc
+
+    def put(self, chunk: bytes) -> None:
+        if self._error is not None:
+            raise self._error
+        self._queue.put(chunk)
+
+    def __enter__(self) -> Callable[[bytes], None]:
+        self._thread.start()
+        return self.put
+
+    def __exit__(self, *exc: object) -> None:
+        self._queue.put(None)
+        self._thread.join()
+        if self._error is not None and exc[0] is None:
+            raise self._error
 
 
 def _write(pkg: _Package, plan: _Plan, tmp: Path) -> None:
