@@ -205,26 +205,39 @@ def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | Non
     ccol, cvals = _column_values(ctx, "radius_cation")
     acol, avals = _column_values(ctx, "radius_anion")
     rc, ra = np.full(rows.n, np.nan), np.full(rows.n, np.nan)
-    srcs: list[list[str]] = [[] for _ in range(rows.n)]
+    srcs: list[list[str]] = [()] * rows.n  # type: ignore[list-item]  # (none yet: shared)
     for i, ions in enumerate(ctx.ions):
         cn = cn_of[i]
         if ions is None or cn is None:
             continue
+        mine: list[str] = []
         for k, (sym, z, col, vals, out) in enumerate((
                 (ions.cation, ions.cation_charge, ccol, cvals, rc),
                 (ions.anion, ions.anion_charge, acol, avals, ra))):
             label = rows.labels[i][k]
             if col is not None and not math.isnan(vals[i]):
                 out[i] = vals[i]
-                srcs[i].append(f"r({label}) = {vals[i]:g} pm from {_where(ctx, i, col)}")
+                mine.append(f"r({label}) = {vals[i]:g} pm from {_where(ctx, i, col)}")
                 continue
-            found = _shannon(sym, z, cn[k])
+            found = _shannon_words(label, sym, z, cn[k])
             if found is None:
                 missing[i].add(label)
                 continue
             out[i] = found[0]
-            srcs[i].append(share(f"r({label}) = {found[0]:g} pm: {found[1]}"))
+            mine.append(found[1])
+        if mine:
+            srcs[i] = mine
     return rc, ra, srcs
+
+
+@lru_cache(maxsize=4096)
+def _shannon_words(label: str, sym: str, z: int, cn: int) -> tuple[float, str] | None:
+    """A Shannon radius and the words that give its source, made once per ion and
+    coordination number."""
+    found = _shannon(sym, z, cn)
+    if found is None:
+        return None
+    return found[0], share(f"r({label}) = {found[0]:g} pm: {found[1]}")
 
 
 @lru_cache(maxsize=1024)
@@ -251,7 +264,7 @@ def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
     n = rows.n
     rows.r0 = np.full(n, np.nan)
     rows.r0_how = [""] * n
-    rows.r0_src = [[] for _ in range(n)]
+    rows.r0_src = [()] * n  # type: ignore[list-item]  # (no sources: one shared tuple)
     dcol, dvals = _column_values(ctx, "interionic_distance")
     rhocol, rho = _column_values(ctx, "density")
     ccol, cvals = _column_values(ctx, "radius_cation")
@@ -307,7 +320,7 @@ def _volumes(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
     n = rows.n
     rows.volume = np.full(n, np.nan)
     rows.volume_how = [""] * n
-    rows.volume_src = [[] for _ in range(n)]
+    rows.volume_src = [()] * n  # type: ignore[list-item]
     vcol, vm = _column_values(ctx, "molar_volume")
     rhocol, rho = _column_values(ctx, "density")
     ccol, vcell = _column_values(ctx, "cell_volume")

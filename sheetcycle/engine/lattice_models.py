@@ -235,15 +235,10 @@ def vbt_charge_type(z_cation: Any, z_anion: Any) -> npt.NDArray[np.object_]:
     zc = np.abs(_f(z_cation))
     za = np.abs(_f(z_anion))
     zc, za = np.broadcast_arrays(zc, za)
-    out = np.empty(zc.shape, dtype=object)
-    for idx in np.ndindex(zc.shape):
-        c, a = zc[idx], za[idx]
-        if not (np.isfinite(c) and np.isfinite(a)):
-            out[idx] = None
-        else:
-            out[idx] = {(1.0, 1.0): "1:1", (2.0, 1.0): "2:1", (1.0, 2.0): "1:2"}.get(
-                (float(c), float(a)), "general"
-            )
+    out = np.full(zc.shape, "general", dtype=object)
+    for (c, a), name in {(1.0, 1.0): "1:1", (2.0, 1.0): "2:1", (1.0, 2.0): "1:2"}.items():
+        out[(zc == c) & (za == a)] = name
+    out[~(np.isfinite(zc) & np.isfinite(za))] = None
     return out
 
 
@@ -448,9 +443,9 @@ def r0_from_density(structure: Any, molar_mass_g_mol: Any, density_g_cm3: Any) -
     v = formula_unit_volume_from_density(molar_mass_g_mol, density_g_cm3)  # nm3
     names, v = np.broadcast_arrays(names, v)
     out = np.full(v.shape, np.nan)
-    for idx in np.ndindex(v.shape):
+    for idx in map(tuple, np.argwhere(np.isfinite(v))):
         key = _structure_key(names[idx])
-        if key is not None and np.isfinite(v[idx]):
+        if key is not None:
             z, ratio = _CUBIC_GEOMETRY[key]
             out[idx] = ratio * np.cbrt(z * v[idx]) * 1000.0  # nm -> pm
     return out
