@@ -157,3 +157,45 @@ def test_column_wise_cells_equal_cell_by_cell(tmp_path: Path, monkeypatch: pytes
         sheet = a.read("xl/worksheets/sheet1.xml")
     assert b'<c r="E2" s="' in sheet and b"<f>B2*2</f>" in sheet  # the check sees cells
     assert re.search(rb'<c r="H3" s="\d+"/>', sheet)  # the listed column's blank, formatted
+
+
+def test_row_formulas_spell_the_same_texts_as_a_list() -> None:
+    from sheetcycle.io.package_cells import RowFormulas
+
+    which = [0, -1, 1, 0, -1, 1]
+    got = RowFormulas(["B{#}*2", "'m s'!$D$4-C{#}"], which, 7, "{#}")
+    want = ["B7*2", None, "'m s'!$D$4-C9", "B10*2", None, "'m s'!$D$4-C12"]
+    assert list(got) == want and len(got) == 6
+    assert got[2:5] == want[2:5] and got[::2] == want[::2] and got[-1] == want[-1]
+    with pytest.raises(ValueError):
+        RowFormulas(["A{#}"], [0, 1], 2, "{#}")
+
+
+def test_array_values_and_row_formulas_write_the_same_bytes_as_lists(tmp_path: Path) -> None:
+    import numpy as np
+
+    from sheetcycle.io.package_cells import RowFormulas
+
+    rows = 5000
+    src = _book(tmp_path / "in.xlsx", rows)
+    values = [float(r) if r % 3 else None for r in range(2, rows + 2)]
+    formulas = [f"B{r}*2" if r % 3 and r % 4 else None for r in range(2, rows + 2)]
+    which = [0 if f else -1 for f in formulas]
+    as_lists = [SheetAddition("Data", 1, 2, 4, [AddedColumn(
+        "v", ColumnCells(values, formulas, "number"), number_format="0.0")])]
+    as_arrays = [SheetAddition("Data", 1, 2, 4, [AddedColumn(
+        "v", ColumnCells(np.array([math.nan if v is None else v for v in values]),
+                         RowFormulas(["B{#}*2"], which, 2, "{#}"), "number"),
+        number_format="0.0")])]
+    notes = [CellNote("Data", "E20", "a note on an added cell", "note")]
+    a_path, b_path = tmp_path / "lists.xlsx", tmp_path / "arrays.xlsx"
+    write_annotated(src, a_path, additions=as_lists, notes=notes)
+    write_annotated(src, b_path, additions=as_arrays, notes=notes)
+    with zipfile.ZipFile(a_path) as a, zipfile.ZipFile(b_path) as b:
+        assert a.namelist() == b.namelist()
+        for name in a.namelist():
+            assert a.read(name) == b.read(name), name
+    cells = as_arrays[0].columns[0].cells
+    assert cells[0] == AddedCell(2.0, "B2*2", "number")  # r = 2: a value and a formula
+    assert cells[1] == AddedCell(None, None, None)  # r = 3: blank
+    assert cells[2] == AddedCell(4.0, None, "number")  # r = 4: a value only

@@ -38,6 +38,7 @@ from sheetcycle.io.package import (
     SheetAddition,
     write_annotated,
 )
+from sheetcycle.io.package_cells import RowFormulas
 from sheetcycle.io.formula_check import FormulaColumn
 from sheetcycle.io.tables import a1
 from sheetcycle.model import ROW_MARK, Flag, RowResult, RowValues, RunResult, Severity, Table
@@ -234,14 +235,14 @@ def _plan_function_cells(run: RunResult, book: WorkbookCells, plan: AnnotationPl
 
 def _value_columns(
     rows: Sequence[RowResult | None],
-) -> dict[str, tuple[list[float | None], list[float | None], str]]:
+) -> dict[str, tuple[np.ndarray, np.ndarray, str]]:
     """Every computed quantity of a table's rows, column-wise:
-    {name: (values, uncertainties, unit)}, None where a row has no number.
+    {name: (values, uncertainties, unit)} as float arrays, NaN where a row has no number.
 
     Rows whose values are views of one :class:`TableValues` are read from its arrays; the
     values set row by row (and rows holding a plain dict) are put over them one by one."""
     n = len(rows)
-    out: dict[str, tuple[list[float | None], list[float | None], str]] = {}
+    out: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
     store = None
     first = next((r for r in rows if r is not None), None)
     if first is not None and isinstance(first.values, RowValues):
@@ -256,10 +257,8 @@ def _value_columns(
             values, sigmas, present, unit = col
             if not present.any():
                 continue
-            v = np.where(present, values, np.nan).tolist()
-            u = np.where(present, sigmas, np.nan).tolist()
-            out[name] = ([None if x != x else x for x in v],
-                         [None if x != x else x for x in u], unit)
+            out[name] = (np.where(present, values, np.nan).astype(float),
+                         np.where(present, sigmas, np.nan).astype(float), unit)
     for i, r in enumerate(rows):
         if r is None:
             continue
@@ -267,10 +266,9 @@ def _value_columns(
         for name, cv in own.items():
             col = out.get(name)
             if col is None:
-                col = out[name] = ([None] * n, [None] * n, cv.unit)
-            value, unc = float(cv.value), float(cv.uncertainty)
-            col[0][i] = None if value != value else value
-            col[1][i] = None if unc != unc else unc
+                col = out[name] = (np.full(n, np.nan), np.full(n, np.nan), cv.unit)
+            col[0][i] = float(cv.value)
+            col[1][i] = float(cv.uncertainty)
     return out
 
 
@@ -301,35 +299,10 @@ def _table_columns(
         name, part = key
         values, uncertainties, unit = quantities[name]
         numbers = values if part == "value" else uncertainties
-        formulas: list[str | None] | None = None
+        formulas: Sequence[str | None] | None = None
         if part == "value":
-            formulas = [None] * len(rows)
-            letters = a1(0, col_of[key])[:-1]
-            shared: dict[str, FormulaColumn] = {}  # template -> its cells in this column
-            for i, number in enumerate(numbers):
-                r = rows[i]
-                if number is None or r is None or not r.trace:
-                    continue
-                sheet_row = table.first_row + i
-                template = _row_template(name, r, col_of, refs, templates)
-                if template == "":  # no signature: a formula of its own
-                    formula = _value_formula(name, r.trace, sheet_row, col_of, refs)
-                    if formula is not None:
-                        formulas[i] = formula
-                        plan.formulas.append((table.sheet, f"{letters}{sheet_row}",
-                                              formula, number))
-                    continue
-                if template is None:
-                    continue
-                formulas[i] = template.replace(ROW_MARK, str(sheet_row))
-                group = shared.get(template)
-                if group is None:
-                    group = shared[template] = FormulaColumn(table.sheet, col_of[key], template)
-                    plan.formula_columns.append(group)
-                group.rows.append(sheet_row)
-                group.expected.append(number)
-            if all(f is None for f in formulas):
-                formulas = None
+            formulas = _formulas_of(name, table, rows, numbers, col_of[key], col_of, refs,
+                                    templates, plan)
         heading = VALUE_HEADINGS.get(name) or _heading_of(name, unit)
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
@@ -355,6 +328,62 @@ def _table_columns(
         columns,
         header_style_cell=header_cell,
     )
+
+
+def _formulas_of(
+    name: str,
+    table: Table,
+    rows: Sequence[RowResult | None],
+    numbers: np.ndarray,
+    col: int,
+    col_of: Mapping[tuple[str, str], int],
+    refs: Callable[[str, str, int], str],
+    templates: dict[tuple[Any, ...], str | None],
+    plan: AnnotationPlan,
+) -> Sequence[str | None] | None:
+    """The formulas of one value column (None: it has none), and their checks in the plan.
+
+    Rows with a signature share a template (:class:`RowFormulas` keeps an index per row,
+    the plan a :class:`FormulaColumn` per template); a row whose trace has none gets a
+    formula of its own."""
+    letters = a1(0, col)[:-1]
+    texts: list[str] = []
+    shared: dict[str, int] = {}  # template -> its index in texts and plan.formula_columns
+    checks: list[FormulaColumn] = []
+    which = np.full(len(rows), -1, dtype=np.int32)
+    own: dict[int, str] = {}
+    for i in np.flatnonzero(np.isfinite(numbers)).tolist():
+        r = rows[i]
+        if r is None or not r.trace:
+            continue
+        number = float(numbers[i])
+        sheet_row = table.first_row + i
+        template = _row_template(name, r, col_of, refs, templates)
+        if template == "":  # no signature: a formula of its own
+            formula = _value_formula(name, r.trace, sheet_row, col_of, refs)
+            if formula is not None:
+                own[i] = formula
+                plan.formulas.append((table.sheet, f"{letters}{sheet_row}", formula, number))
+            continue
+        if template is None:
+            continue
+        k = shared.get(template)
+        if k is None:
+            k = shared[template] = len(texts)
+            texts.append(template)
+            checks.append(FormulaColumn(table.sheet, col, template))
+        which[i] = k
+        checks[k].rows.append(sheet_row)
+        checks[k].expected.append(number)
+    plan.formula_columns.extend(checks)
+    if own:  # rows of their own: every formula spelled out
+        listed: list[str | None] = list(RowFormulas(texts, which, table.first_row, ROW_MARK))
+        for i, formula in own.items():
+            listed[i] = formula
+        return listed
+    if not texts:
+        return None
+    return RowFormulas(texts, which, table.first_row, ROW_MARK)
 
 
 def _heading_of(name: str, unit: str) -> str:
@@ -648,7 +677,7 @@ def _added_values(plan: AnnotationPlan) -> dict[tuple[str, int, int], object]:
             if isinstance(cells, ColumnCells):
                 if cells.formulas is None:
                     continue
-                values = cells.values
+                values = cells.value_list()
             else:
                 values = [cell.value for cell in cells]
             r0, c = add.first_row - 1, add.start_col + j

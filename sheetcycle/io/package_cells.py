@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from sheetcycle.io.package_styles import StyleBook
 from sheetcycle.io.package_xml import col_letters, esc_attr, esc_text
 
-__all__ = ["AddedCell", "CellStyler", "ColumnCells", "cell_xml", "new_sheet_xml"]
+__all__ = ["AddedCell", "CellStyler", "ColumnCells", "RowFormulas", "cell_xml", "new_sheet_xml"]
 
 #: Severity -> fill colour '#RRGGBB'.
 FillMap = Mapping[str, str]
@@ -43,6 +43,52 @@ _SET_FORMULA = AddedCell.__dict__["formula"].__set__
 _SET_STYLE = AddedCell.__dict__["style"].__set__
 
 
+class RowFormulas(Sequence[str | None]):
+    """A column's formulas kept as a few templates and, per row, which one it uses.
+
+    ``which[i]`` indexes ``templates`` (-1: no formula); the template's ``mark`` stands
+    for the row's own sheet row, ``first_row + i``. The formula text of a row is made when
+    it is read, so a 100,000-row column holds a small integer per row, not a string.
+    """
+
+    __slots__ = ("first_row", "mark", "templates", "which")
+
+    def __init__(self, templates: Sequence[str], which: Sequence[int], first_row: int,
+                 mark: str) -> None:
+        import numpy as np
+
+        self.templates = list(templates)
+        self.which = np.asarray(which, dtype=np.int32)
+        if self.which.size and int(self.which.max()) >= len(self.templates):
+            raise ValueError("a row points at a template that is not there")
+        self.first_row = first_row
+        self.mark = mark
+
+    def __len__(self) -> int:
+        return int(self.which.size)
+
+    def __getitem__(self, i):  # type: ignore[no-untyped-def,override]
+        if isinstance(i, slice):
+            lo, hi, step = i.indices(len(self))
+            texts, mark = self.templates, self.mark
+            return [None if k < 0 else texts[k].replace(mark, str(self.first_row + j))
+                    for j, k in zip(range(lo, hi, step), self.which[lo:hi:step].tolist(),
+                                    strict=True)]
+        k = int(self.which[i])
+        if k < 0:
+            return None
+        return self.templates[k].replace(self.mark, str(self.first_row + range(len(self))[i]))
+
+
+def _none_for_nan(values: object) -> list[object]:
+    """A column of values as cells take them: a float array's NaN is a blank (None)."""
+    import numpy as np
+
+    if isinstance(values, np.ndarray):
+        return [None if v != v else v for v in values.tolist()]
+    return list(values)  # type: ignore[call-overload]
+
+
 class ColumnCells(Sequence[AddedCell]):
     """An added column's cells held column-wise: a value and a formula per row, and a style
     for every cell that holds something (one for all, or one per row).
@@ -56,7 +102,7 @@ class ColumnCells(Sequence[AddedCell]):
 
     def __init__(
         self,
-        values: Sequence[float | str | None],
+        values: Sequence[float | str | None],  # or a float array, NaN for a blank
         formulas: Sequence[str | None] | None = None,
         style: str | Sequence[str | None] | None = None,
     ) -> None:
@@ -71,9 +117,17 @@ class ColumnCells(Sequence[AddedCell]):
     def __len__(self) -> int:
         return len(self.values)
 
+    def value_list(self, lo: int = 0, hi: int | None = None) -> list[float | str | None]:
+        """The values of rows lo..hi-1, None for a blank (a float array's NaN)."""
+        return _none_for_nan(self.values[lo:hi])  # type: ignore[return-value]
+
     def at(self, i: int) -> tuple[float | str | None, str | None, str | None]:
         """(value, formula, style) of row ``i``."""
         value = self.values[i]
+        if type(value) is not float and not isinstance(value, str | None):
+            value = float(value)  # type: ignore[arg-type]  # a float array's number
+            if value != value:
+                value = None
         formula = self.formulas[i] if self.formulas is not None else None
         if value is None and formula is None:
             return None, None, None

@@ -364,7 +364,7 @@ class SheetRewriter:
         letters = self._letters[col.col]
         cells = col.cells
         if type(cells) is ColumnCells:
-            values = cells.values[lo:hi]
+            values = cells.value_list(lo, hi)
             formulas = cells.formulas[lo:hi] if cells.formulas is not None else [None] * (hi - lo)
             style = cells.style
             styles = ([style] * (hi - lo) if style is None or isinstance(style, str)
