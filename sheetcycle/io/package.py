@@ -24,13 +24,20 @@ from __future__ import annotations
 import re
 import time
 import zipfile
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 
 from sheetcycle.errors import ReadError, WriteError
 from sheetcycle.io.atomic import atomic_output
-from sheetcycle.io.package_cells import AddedCell, CellStyler, ColumnCells, new_sheet_xml
+from sheetcycle.io.package_cells import (
+    AddedCell,
+    CellStyler,
+    ColumnCells,
+    new_sheet_chunks,
+    register_new_sheet_styles,
+)
 from sheetcycle.io.package_images import (
     CT_DRAWING,
     CT_PNG,
@@ -45,8 +52,11 @@ from sheetcycle.io.package_notes import (
     NoteText,
     add_comments,
     add_vml,
+    comments_chunks,
     existing_refs,
+    new_vml_chunks,
     used_vml_blocks,
+    vml_blocks,
 )
 from sheetcycle.io.package_sheet import (
     ColumnJob,
@@ -262,7 +272,10 @@ def _check_sheet_name(name: str, taken: set[str], file: str) -> None:
 @dataclass
 class _Plan:
     replaced: dict[str, bytes] = field(default_factory=dict)  # changed small parts
-    added: dict[str, bytes] = field(default_factory=dict)  # new parts, written last
+    # new parts, written last; a big one as a function that makes it then (its bytes, or
+    # its chunks), so that it is not held in memory while the worksheets stream
+    added: dict[str, bytes | Callable[[], bytes | Iterable[bytes]]] = field(
+        default_factory=dict)
     jobs: dict[str, SheetJob] = field(default_factory=dict)  # streamed worksheet parts
     dropped: set[str] = field(default_factory=set)
     styles_part: str = "xl/styles.xml"
@@ -506,8 +519,10 @@ def _plan(
         new_wb_rels.append((rid, _T_SHEET, relative_target(wb_part, part)))
         overrides.append((part, _CT_SHEET))
         drawing_rid = _plan_images(pkg, plan, ns, part, overrides) if ns.images else None
-        plan.added[part] = new_sheet_xml(
-            ns.rows, ns.col_widths, ns.links, styler, _cell_attrs, drawing_rid
+        # its cell formats now, while the styles part can still take them
+        register_new_sheet_styles(ns.rows, ns.links, styler, _cell_attrs)
+        plan.added[part] = partial(
+            new_sheet_chunks, ns.rows, ns.col_widths, ns.links, styler, _cell_attrs, drawing_rid
         )
         any_formula = any_formula or any(
             c is not None and c.formula is not None for row in ns.rows for c in row
@@ -667,8 +682,10 @@ def _plan_notes(
         overrides.append((comments_part, _CT_COMMENTS))
         old_comments = None
     have = existing_refs(old_comments)
-    comments = add_comments(old_comments, items)
-    (plan.replaced if old_comments is not None else plan.added)[comments_part] = comments
+    if old_comments is not None:
+        plan.replaced[comments_part] = add_comments(old_comments, items)
+    else:
+        plan.added[comments_part] = partial(comments_chunks, None, items)
     vml_part: str | None = None
     if any(r.type == _T_VML for r in rels):
         with pkg.zin.open(part) as fh:
@@ -685,11 +702,10 @@ def _plan_notes(
             next_block = last + 1
     else:
         vml_part = _free_part(pkg.names, "xl/drawings/vmlDrawing{}.vml")
-        vml, last = add_vml(None, shapes, block)
-        next_block = last + 1
+        next_block = vml_blocks(len(shapes), block)[-1] + 1
         rid = ids.pop(0)
         new_rels.append((rid, _T_VML, relative_target(part, vml_part)))
-        plan.added[vml_part] = vml
+        plan.added[vml_part] = partial(new_vml_chunks, shapes, block)
         plan.jobs[part].legacy_rid = rid
     if new_rels:
         target = plan.replaced if rels_data is not None else plan.added
@@ -705,12 +721,21 @@ class _Out:
         self.zin = zin
         self.zout = zout
 
-    def put(self, name: str, data: bytes, like: zipfile.ZipInfo | None) -> None:
+    def put(self, name: str, data: bytes | Callable[[], bytes | Iterable[bytes]],
+            like: zipfile.ZipInfo | None) -> None:
         stamp = like.date_time if like else time.localtime()[:6]
         info = zipfile.ZipInfo(name, date_time=stamp)
         info.compress_type = like.compress_type if like else zipfile.ZIP_DEFLATED
         if like is not None:
             info.external_attr = like.external_attr
+        if callable(data):  # a part made now
+            data = data()
+        if not isinstance(data, bytes):  # its chunks, streamed
+            info._compresslevel = 1  # type: ignore[attr-defined]
+            with self.zout.open(info, "w", force_zip64=True) as dst:
+                for chunk in data:
+                    dst.write(chunk)
+            return
         if len(data) > 1024 * 1024:  # big parts (flags sheet, notes): fast deflate (level 1)
             info._compresslevel = 1  # type: ignore[attr-defined]
         self.zout.writestr(info, data)
@@ -767,6 +792,10 @@ class _Deflating:
             raise self._error
 
 
+def _n_formats(styles: StyleBook) -> int:
+    return sum(len(sec.added) for sec in styles.sections.values())
+
+
 def _write(pkg: _Package, plan: _Plan, tmp: Path) -> None:
     assert plan.styles is not None
     styler = CellStyler(plan.styles, FILLS)
@@ -797,8 +826,12 @@ def _write(pkg: _Package, plan: _Plan, tmp: Path) -> None:
                 styles_info = None
         if plan.styles_part not in pkg.names:
             out.put(plan.styles_part, plan.styles.render(), None)
+        formats = _n_formats(plan.styles)
         for name, data in plan.added.items():
             out.put(name, data, None)
+        if _n_formats(plan.styles) != formats:  # a part made late asked for a new cell format
+            raise WriteError("internal: a new part needed a cell format after the styles part "
+                             "was written; nothing was written", file=pkg.file)
 
 
 def write_annotated(

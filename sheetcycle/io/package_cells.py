@@ -8,7 +8,7 @@ formula cell carries its cached value (``<v>``): a number, or ``t="str"`` for te
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 
 from sheetcycle.io.package_styles import StyleBook
@@ -223,6 +223,39 @@ def new_sheet_xml(
     ``drawing_rid`` is the id of the sheet's relationship to its drawing part (pictures),
     written as ``<drawing>`` after the page margins, where the schema puts it.
     """
+    return b"".join(new_sheet_chunks(rows, col_widths, links, styler, cell_attrs, drawing_rid))
+
+
+def register_new_sheet_styles(
+    rows: Sequence[Sequence[object | None]],
+    links: Mapping[tuple[int, int], str],
+    styler: CellStyler,
+    cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
+) -> None:
+    """Add every cell format a new sheet's cells will ask for, so that the sheet can be
+    made later (after the styles part is written) without adding one."""
+    seen: set[tuple[object, bool, bool]] = set()
+    for r0, row in enumerate(rows):
+        for c0, cell in enumerate(row):
+            if cell is None:
+                continue
+            value, formula, style = cell_attrs(cell)
+            key = (style, _is_numeric(value, formula), (r0, c0) in links)
+            if key not in seen:
+                seen.add(key)
+                styler.named(key[0], numeric=key[1], number_xf=0, link=key[2])  # type: ignore[arg-type]
+
+
+def new_sheet_chunks(
+    rows: Sequence[Sequence[object | None]],
+    col_widths: Sequence[float],
+    links: Mapping[tuple[int, int], str],
+    styler: CellStyler,
+    cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
+    drawing_rid: str | None = None,
+    rows_per_chunk: int = 4096,
+) -> Iterator[bytes]:
+    """:func:`new_sheet_xml` a few thousand rows at a time, for streaming into the zip."""
     number_xf = 0
     out: list[str] = [
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
@@ -256,6 +289,9 @@ def new_sheet_xml(
             cells.append(cell_xml("", f"{col_letters(c0)}{r0 + 1}", s, value, formula))
         if cells:
             out.append(f'<row r="{r0 + 1}">{"".join(cells)}</row>')
+        if r0 % rows_per_chunk == rows_per_chunk - 1:
+            yield "".join(out).encode("utf-8")
+            out.clear()
     out.append("</sheetData>")
     if links:
         out.append("<hyperlinks>")
@@ -270,4 +306,4 @@ def new_sheet_xml(
     if drawing_rid is not None:
         out.append(f'<drawing r:id="{esc_attr(drawing_rid)}"/>')
     out.append("</worksheet>")
-    return "".join(out).encode("utf-8")
+    yield "".join(out).encode("utf-8")

@@ -11,12 +11,20 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 
 from sheetcycle.io.package_xml import MAIN_NS, col_letters, esc_text, ns_prefix, open_empty
 
-__all__ = ["NoteText", "add_comments", "add_vml", "used_vml_blocks"]
+__all__ = [
+    "NoteText",
+    "add_comments",
+    "add_vml",
+    "comments_chunks",
+    "new_vml_chunks",
+    "used_vml_blocks",
+    "vml_blocks",
+]
 
 AUTHOR = "sheetcycle"
 _V = "urn:schemas-microsoft-com:vml"
@@ -59,6 +67,11 @@ def existing_refs(comments: bytes | None) -> set[str]:
 
 def add_comments(comments: bytes | None, notes: Iterable[NoteText]) -> bytes:
     """The comments part with ``notes`` added (a new part when ``comments`` is None)."""
+    return b"".join(comments_chunks(comments, notes))
+
+
+def comments_chunks(comments: bytes | None, notes: Iterable[NoteText]) -> list[bytes]:
+    """:func:`add_comments` as pieces, for streaming a large part into the zip."""
     data = _EMPTY_COMMENTS if comments is None else comments
     pb = ns_prefix(data, MAIN_NS) or b""
     p = pb.decode()
@@ -94,7 +107,7 @@ def add_comments(comments: bytes | None, notes: Iterable[NoteText]) -> bytes:
             f"{run}{_t(p, note.text)}</{p}r></{p}text></{p}comment>".encode()
         )
     end = data.rfind(b"</" + pb + b"commentList>")
-    return data[:end] + b"".join(new) + data[end:]
+    return [data[:end], *new, data[end:]]
 
 
 def _append_run(data: bytes, pb: bytes, ref: str, run: str) -> bytes:
@@ -159,18 +172,34 @@ _SHAPETYPE = (
 )
 
 
+def vml_blocks(n_notes: int, first_block: int) -> list[int]:
+    """The shape-id blocks (1023 shapes each) that ``n_notes`` new note boxes take."""
+    return list(range(first_block, first_block + max(1, math.ceil(n_notes / 1023))))
+
+
+def new_vml_chunks(notes: list[NoteText], first_block: int,
+                   per_chunk: int = 4096) -> Iterator[bytes]:
+    """A new VML drawing part (see :func:`add_vml`), a few thousand note boxes at a time."""
+    blocks = vml_blocks(len(notes), first_block)
+    ids = [b * 1024 + k for b in blocks for k in range(1, 1024)][: len(notes)]
+    yield (
+        f'<xml xmlns:v="{_V}" xmlns:o="{_O}" xmlns:x="{_X}">'
+        f'<o:shapelayout v:ext="edit"><o:idmap v:ext="edit" data="'
+        f'{",".join(map(str, blocks))}"/></o:shapelayout>' + _SHAPETYPE.format(ns="")
+    ).encode()
+    for lo in range(0, len(notes), per_chunk):
+        yield "".join(_shape(i, n, "") for i, n in zip(ids[lo:lo + per_chunk],
+                                                        notes[lo:lo + per_chunk],
+                                                        strict=True)).encode()
+    yield b"</xml>"
+
+
 def add_vml(vml: bytes | None, notes: list[NoteText], first_block: int) -> tuple[bytes, int]:
     """The VML drawing with a hidden note box per note; returns (part, last block used)."""
-    blocks = list(range(first_block, first_block + max(1, math.ceil(len(notes) / 1023))))
+    blocks = vml_blocks(len(notes), first_block)
     ids = [b * 1024 + k for b in blocks for k in range(1, 1024)][: len(notes)]
     if vml is None:
-        head = (
-            f'<xml xmlns:v="{_V}" xmlns:o="{_O}" xmlns:x="{_X}">'
-            f'<o:shapelayout v:ext="edit"><o:idmap v:ext="edit" data="'
-            f'{",".join(map(str, blocks))}"/></o:shapelayout>' + _SHAPETYPE.format(ns="")
-        )
-        body = "".join(_shape(i, n, "") for i, n in zip(ids, notes, strict=True))
-        return (head + body + "</xml>").encode(), blocks[-1]
+        return b"".join(new_vml_chunks(notes, first_block)), blocks[-1]
     declared = all(
         re.search(rb"xmlns:" + pfx + rb"\s*=\s*[\"']" + re.escape(uri.encode()), vml)
         for pfx, uri in ((b"v", _V), (b"o", _O), (b"x", _X))
