@@ -232,15 +232,26 @@ class _Term:
 
     values: np.ndarray
     sigmas: np.ndarray
-    sources: list[str | None]  # per row; None where missing
+    sources: list[str | None]  # per row, where not a cell of the row; None where missing
     exprs: list[str | None]
     from_cell: np.ndarray  # bool per row: the value is the row's own cell
+    # the columns the row's own cells came from (label, sheet, column, first data row), and
+    # per row which of them (-1: none); the source text is made when read (:meth:`source`)
+    cells_from: list[tuple[str, str, int, int]] = field(default_factory=list)
+    which_cells: np.ndarray | None = None
 
     @classmethod
     def empty(cls, n: int) -> _Term:
         return cls(
             np.full(n, np.nan), np.full(n, np.nan), [None] * n, [None] * n, np.zeros(n, dtype=bool)
         )
+
+    def source(self, i: int) -> str | None:
+        """Where row i's value came from: '<column header>: Sheet!C5', or the reference."""
+        if self.which_cells is not None and (k := int(self.which_cells[i])) >= 0:
+            label, sheet, col, first_row = self.cells_from[k]
+            return f"{label}: {sheet}!{a1(first_row - 1 + i, col)}"
+        return self.sources[i]
 
     def fill_from_cells(
         self,
@@ -263,10 +274,12 @@ class _Term:
             self.sigmas = np.where(have, col.uncertainties, self.sigmas)
         rowless = a1(0, col.col)[:-1] + ROW_MARK
         made: dict[float, str] = {}  # one expression text per distinct factor
+        if self.which_cells is None:
+            self.which_cells = np.full(len(self.values), -1, dtype=np.int16)
+        self.which_cells[have] = len(self.cells_from)
+        self.cells_from.append((label, table.sheet, col.col, table.first_row))
         for i in np.nonzero(have)[0]:
             i = int(i)
-            cell = a1(table.first_row - 1 + i, col.col)
-            self.sources[i] = f"{label}: {table.sheet}!{cell}"
             if col.from_text is not None and col.from_text[i]:
                 self.exprs[i] = None  # a number read out of text: no formula can use the cell
                 continue
@@ -662,13 +675,14 @@ def close_table(
         ie_total += np.where(need, np.nan_to_num(t.values), 0.0)
         ie_var += np.where(need, np.nan_to_num(t.sigmas) ** 2, 0.0)
         for i in np.nonzero(need & ~np.isnan(t.values))[0]:
-            ie_sources[int(i)].append(t.sources[int(i)] or "")
+            ie_sources[int(i)].append(t.source(int(i)) or "")
             ie_exprs[int(i)].append(t.exprs[int(i)] or "")
     ion_values = np.where(ie_missing | np.isnan(p), np.nan, ie_total)
+    joined: dict[tuple[str, ...], str] = {}  # rows of one cation share one text
     ion = _Term(
         ion_values,
         np.where(ie_var > 0, np.sqrt(ie_var), np.nan),
-        ["; ".join(s) if s else None for s in ie_sources],
+        [joined.setdefault(tuple(s), "; ".join(s)) if s else None for s in ie_sources],
         [
             share("+".join(e)) if e and not np.isnan(ion_values[i]) else None
             for i, e in enumerate(ie_exprs)
@@ -1144,7 +1158,7 @@ def _missing_words(term: str, m: str | None, x: str | None, p: int, q: int) -> s
 
 def _sources(terms: dict[str, _Term], i: int, exclude: Iterable[str] = ()) -> list[str]:
     skip = set(exclude)
-    return [s for name, t in terms.items() if name not in skip and (s := t.sources[i])]
+    return [s for name, t in terms.items() if name not in skip and (s := t.source(i))]
 
 
 # ----------------------------------------------------------------------------- whole run
