@@ -381,7 +381,7 @@ class RowValues(MutableMapping[str, "ComputedValue"]):
         return repr(dict(self.items()))
 
 
-@dataclass
+@dataclass(slots=True)  # a large table makes one per row: no per-instance __dict__
 class RowResult:
     """Everything the tool says about one compound row."""
 

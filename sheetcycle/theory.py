@@ -187,10 +187,11 @@ def _ions_and_structures(ctx: TableContext, flags: list[list[Flag]]) -> _Rows:
                 fcell = _cell(ctx, i, fcol) if fcol is not None else None
                 flags[i].append(Flag(
                     "structure-unknown", Severity.NOTE,
-                    f"no structure type for {formula} (no structure column value and none "
-                    "built in): no Born-Landé or Born-Mayer value; a structure column (rock "
-                    "salt, caesium chloride, zinc blende, wurtzite, fluorite, antifluorite, "
-                    "rutile, corundum) gives them", ctx.table.sheet, fcell))
+                    share(f"no structure type for {formula} (no structure column value and "
+                          "none built in): no Born-Landé or Born-Mayer value; a structure "
+                          "column (rock salt, caesium chloride, zinc blende, wurtzite, "
+                          "fluorite, antifluorite, rutile, corundum) gives them"),
+                    ctx.table.sheet, fcell))
                 continue
             structure_src[i] = f"structure {found[0]} of {formula}: built-in table ({built[1]})"
         structure[i] = found[0]
@@ -226,7 +227,7 @@ def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | Non
             out[i] = found[0]
             mine.append(found[1])
         if mine:
-            srcs[i] = mine
+            srcs[i] = share(tuple(mine))  # type: ignore[call-overload]  # one per salt
     return rc, ra, srcs
 
 
@@ -296,7 +297,7 @@ def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
             rows.r0[i] = measured[0]
             rows.r0_how[i] = ("measured, from the built-in table of room-temperature "
                               "lattice constants")
-            rows.r0_src[i] = [measured[1]]
+            rows.r0_src[i] = share((measured[1],))  # type: ignore[assignment]
         elif np.isfinite(from_radii[i]):
             rows.r0[i] = from_radii[i]
             rows.r0_how[i] = "estimated as r+ + r−"
