@@ -142,6 +142,12 @@ def share(text: _T) -> _T:
     return text
 
 
+def forget_shared() -> None:
+    """Let go of the copies kept by :func:`share` (each run starts afresh, so that a
+    process that runs many workbooks does not keep every earlier one's words)."""
+    _SHARED.clear()
+
+
 #: Renders ``(method, sources)`` of one value from its key (a row index, say) when they are
 #: first read. One renderer serves a whole column of values.
 Render = Callable[[Any], tuple[str, Sequence[str]]]

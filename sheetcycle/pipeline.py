@@ -1187,6 +1187,9 @@ def run_tables(
     reference: ReferenceData | None = None,
 ) -> RunResult:
     """Close every compound table's cycles, with any element sheet's values as references."""
+    from sheetcycle.model import forget_shared
+
+    forget_shared()
     base = reference or ReferenceData.builtin()
     overrides: list[tuple[str, str, int, RefValue]] = list(settings.extra_references)
     for t in tables:

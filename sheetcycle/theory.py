@@ -590,7 +590,8 @@ def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArra
                "leave out (largest for big ions such as Cs+, Rb+ and I−)")
     flags[i].append(Flag(
         "covalent-character", Severity.WARNING if strong else Severity.NOTE,
-        f"the Born-Haber lattice enthalpy ({cycle[i]:.0f} kJ/mol) is {_pct(d)} % above the "
-        f"{_TITLE[chosen]} value ({h:.0f} kJ/mol at 298 K): {meaning} "
-        f"(compared with {_TITLE[chosen]}, {why}; threshold "
-        f"{ctx.settings.covalent_threshold:g} %{r0_note})", ctx.table.sheet, fcell))
+        # rounded figures: rows of one salt often say the same words, kept once
+        share(f"the Born-Haber lattice enthalpy ({cycle[i]:.0f} kJ/mol) is {_pct(d)} % above "
+              f"the {_TITLE[chosen]} value ({h:.0f} kJ/mol at 298 K): {meaning} "
+              f"(compared with {_TITLE[chosen]}, {why}; threshold "
+              f"{ctx.settings.covalent_threshold:g} %{r0_note})"), ctx.table.sheet, fcell))

@@ -199,3 +199,15 @@ def test_array_values_and_row_formulas_write_the_same_bytes_as_lists(tmp_path: P
     assert cells[0] == AddedCell(2.0, "B2*2", "number")  # r = 2: a value and a formula
     assert cells[1] == AddedCell(None, None, None)  # r = 3: blank
     assert cells[2] == AddedCell(4.0, None, "number")  # r = 4: a value only
+
+
+def test_shared_texts_are_one_copy_and_forgotten_between_runs() -> None:
+    from sheetcycle.model import _SHARED, forget_shared, share
+
+    a = "".join(["covalent ", "character"])  # two equal texts, two objects
+    b = "".join(["covalent char", "acter"])
+    assert a == b and a is not b
+    assert share(a) is share(b) is a
+    forget_shared()
+    assert not _SHARED
+    assert share(b) is b  # a fresh registry keeps the first copy it sees

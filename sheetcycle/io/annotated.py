@@ -41,7 +41,16 @@ from sheetcycle.io.package import (
 from sheetcycle.io.package_cells import RowFormulas
 from sheetcycle.io.formula_check import FormulaColumn
 from sheetcycle.io.tables import a1
-from sheetcycle.model import ROW_MARK, Flag, RowResult, RowValues, RunResult, Severity, Table
+from sheetcycle.model import (
+    ROW_MARK,
+    Flag,
+    RowResult,
+    RowValues,
+    RunResult,
+    Severity,
+    Table,
+    share,
+)
 
 __all__ = [
     "FLAGS_SHEET",
@@ -164,7 +173,8 @@ def _last_used_col(sheet: SheetCells, first: int, last: int) -> int:
 
 
 def _flag_text(flags: Sequence[Flag]) -> str:
-    return "\n".join(f"{f.severity.value}: {f.message}" for f in flags)
+    # rows of one salt often carry the same words: one copy (model.share)
+    return share("\n".join(f"{f.severity.value}: {f.message}" for f in flags))
 
 
 def _worst(flags: Sequence[Flag]) -> Severity | None:
@@ -447,7 +457,8 @@ def _plan_notes(run: RunResult, plan: AnnotationPlan) -> None:
     for (sheet, cell), flags in by_cell.items():
         worst = _worst(flags)
         assert worst is not None
-        plan.notes.append(CellNote(sheet, cell, "sheetcycle\n" + _flag_text(flags), worst.value))
+        plan.notes.append(CellNote(sheet, cell, share("sheetcycle\n" + _flag_text(flags)),
+                                  worst.value))
 
 
 def _method_rows(run: RunResult) -> tuple[list[list[AddedCell | None]], int]:
