@@ -96,3 +96,18 @@ def test_a_column_that_points_at_itself_is_handed_back_whole() -> None:
     col = FormulaColumn("T", 2, f"A{ROW_MARK}+C1", [2, 3, 4], [1.0, 2.0, 3.0])
     problems, rest = check_formula_columns([col], _book(rows), {})
     assert problems == [] and len(rest) == 3
+
+
+def test_a_template_over_an_added_value_column_is_left_to_the_cell_by_cell_check() -> None:
+    # column C is an added column of plain values (no templates): only the cell-by-cell
+    # check is given its values, so the column check must not read it as blank
+    rows, a, b = _table(6)
+    col = FormulaColumn("T", 3, f"C{ROW_MARK}-A{ROW_MARK}", [2, 3],
+                        [float(5.0 - a[0]), float(6.0 - a[1])])
+    problems, rest = check_formula_columns([col], _book(rows), {}, added={("T", 2), ("T", 3)})
+    assert problems == [] and len(rest) == 2
+    got = check_formulas(rest, _book(rows), {("T", 1, 2): 5.0, ("T", 2, 2): 6.0})
+    assert got == []
+    # without being told C is added, the column check reads blanks and disagrees
+    problems, rest = check_formula_columns([col], _book(rows), {})
+    assert len(problems) == 2 and rest == []

@@ -650,8 +650,10 @@ def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1
     """
     from sheetcycle.io.formula_check import check_formula_columns, check_formulas
 
+    added = {(add.sheet, add.start_col + j) for add in plan.additions
+             for j in range(len(add.columns))}
     problems, rest = check_formula_columns(plan.formula_columns, book, _new_sheet_values(plan),
-                                           rel=rel)
+                                           rel=rel, added=added)
     rest += plan.formulas
     if rest:
         problems += check_formulas(rest, book, _added_values(plan), rel=rel)

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence, Set
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -172,6 +172,7 @@ def check_formula_columns(
     extra: Mapping[tuple[str, int, int], object],
     *,
     rel: float = 1e-9,
+    added: Set[tuple[str, int]] = frozenset(),
 ) -> tuple[list[tuple[str, str, str, float, float]], list[tuple[str, str, str, float]]]:
     """Check whole template columns at once: (disagreements, cells left to check one by one).
 
@@ -182,7 +183,9 @@ def check_formula_columns(
     not fit (ranges, functions, text inputs, error values, a result that is not finite)
     are handed back to be checked by :func:`check_formulas`, whose answers are the
     reference. ``extra`` gives the values of the tool's new sheets (the reference cells);
-    added formula columns are read from this check's own results.
+    added formula columns are read from this check's own results. A template that points
+    at another added column (``added``: its (sheet, 0-based column)) that is not one of
+    ``columns`` is handed back too: only the cell-by-cell check is given those values.
     """
     import numpy as np
 
@@ -199,6 +202,7 @@ def check_formula_columns(
     # per template: (shape, [(sheet index, row offset or None, fixed row, col)]) or None
     plans: list[Any] = []
     points_at: dict[int, set[tuple[str, int]]] = {}
+    checked_cols = {(c.sheet, c.col) for c in columns}
     for k, column in enumerate(columns):
         points_at[k] = set()
         plans.append(None)
@@ -216,7 +220,8 @@ def check_formula_columns(
             continue
         refs = []
         for j, (s, r1, c1, r2, c2) in enumerate(first.refs):
-            if r1 != r2 or c1 != c2:
+            elsewhere = (names[s], c1) in added and (names[s], c1) not in checked_cols
+            if r1 != r2 or c1 != c2 or elsewhere:
                 break
             offset = r1 - (column.rows[0] - 1)
             moves = len(samples) > 1 and samples[1].refs[j][1] != r1
