@@ -6,7 +6,8 @@ The workbook is a lab-style compound table (invented values: twenty salts repeat
 small offsets) written with xlsxwriter. Each contender runs in a fresh subprocess; wall
 time and peak resident memory (ru_maxrss of the child) are printed with their ratios.
 Targets (the annotated-copy issue): time <= 0.25x and peak memory <= 0.6x openpyxl's.
-Not a test: it never fails.
+Then the phases of one annotation (read, run, plan, verify, write) are timed in a
+further process, with the resident memory after each. Not a test: it never fails.
 """
 
 from __future__ import annotations
@@ -86,6 +87,36 @@ def child(code: str) -> tuple[float, float]:
     return wall, peak / 1024.0
 
 
+# The phases of one annotation, timed in one process (resident memory after each, MiB).
+PHASES = """
+import resource, sys, time
+from pathlib import Path
+from sheetcycle.api import _read_tables
+from sheetcycle.io.annotated import plan_annotations, verify_formulas
+from sheetcycle.io.package import write_annotated
+from sheetcycle.pipeline import Settings, run_tables
+
+def rss():
+    with open("/proc/self/status") as f:
+        return next(int(l.split()[1]) // 1024 for l in f if l.startswith("VmRSS"))
+
+src, dst, s = Path(sys.argv[1]), Path(sys.argv[2]), Settings()
+t = time.perf_counter()
+def lap(name):
+    global t
+    now = time.perf_counter()
+    print(f"phase={name} seconds={now - t:.2f} rss_mib={rss()}")
+    t = now
+found = _read_tables(src, s.column_overrides, s.limits); lap("read")
+run = run_tables(src, found.tables, s, list(found.flags)); lap("run")
+plan = plan_annotations(run, found.book); lap("plan")
+verify_formulas(plan, found.book); lap("verify")
+write_annotated(src, dst, additions=plan.additions, notes=plan.notes,
+                new_sheets=plan.new_sheets, cell_values=plan.cell_values, force=True)
+lap("write")
+"""
+
+
 def main(rows: int = 100_000) -> None:
     with tempfile.TemporaryDirectory() as tmp:
         src = Path(tmp) / "salts.xlsx"
@@ -111,6 +142,10 @@ def main(rows: int = 100_000) -> None:
             f"time_ratio={ours_t / ref_t:.3f} target<=0.25 "
             f"memory_ratio={ours_m / ref_m:.3f} target<=0.60"
         )
+        split = subprocess.run(
+            [sys.executable, "-c", PHASES, str(src), str(Path(tmp) / "phases.xlsx")],
+            check=True, capture_output=True, text=True)
+        print(split.stdout, end="")
 
 
 if __name__ == "__main__":
