@@ -21,9 +21,11 @@ See docs/lattice-models.md, "In a workbook run", for the choices made here.
 from __future__ import annotations
 
 import math
+from collections import defaultdict
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache, partial
+from typing import TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -42,6 +44,9 @@ from sheetcycle.pipeline import TableContext
 __all__ = ["COMPARISON_ORDER", "DIFFERENCE_SUFFIX", "MODELS", "theory_pass"]
 
 FloatArray = npt.NDArray[np.float64]
+_V = TypeVar("_V")
+#: Per-row things only some rows have (flags, missing radii), by row index.
+Rows = dict[int, _V]
 KJ = "kJ/mol"
 
 #: The JSON names of the four models (U, kJ/mol).
@@ -148,7 +153,7 @@ def _column_values(ctx: TableContext, quantity: str) -> tuple[Column | None, Flo
 # ----------------------------------------------------------------------------- inputs
 
 
-def _ions_and_structures(ctx: TableContext, flags: list[list[Flag]]) -> _Rows:
+def _ions_and_structures(ctx: TableContext, flags: Rows[list[Flag]]) -> _Rows:
     n = len(ctx.rows)
     nan = np.full(n, np.nan)
     zc, za, nc, na, mad = nan.copy(), nan.copy(), nan.copy(), nan.copy(), nan.copy()
@@ -201,7 +206,7 @@ def _ions_and_structures(ctx: TableContext, flags: list[list[Flag]]) -> _Rows:
 
 
 def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | None],
-           missing: list[set[str]]) -> tuple[FloatArray, FloatArray, list[list[str]]]:
+           missing: Rows[set[str]]) -> tuple[FloatArray, FloatArray, list[list[str]]]:
     """Radii (pm) per row: the row's radius columns, else Shannon at the given coordination."""
     ccol, cvals = _column_values(ctx, "radius_cation")
     acol, avals = _column_values(ctx, "radius_anion")
@@ -258,7 +263,7 @@ def _molar_mass(ctx: TableContext) -> FloatArray:
 
 
 def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
-               missing: list[set[str]]) -> None:
+               missing: Rows[set[str]]) -> None:
     """r0 per row, the first of: a distance column; the density (cubic structures); the
     row's own radius columns (both ions); the built-in measured distance (when the row's
     structure is the tabulated one); the sum of Shannon radii."""
@@ -316,7 +321,7 @@ def _measured(formula: str, structure: str | None) -> tuple[float, str] | None:
 
 
 def _volumes(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
-             flags: list[list[Flag]]) -> None:
+             flags: Rows[list[Flag]]) -> None:
     """Formula-unit volume (nm3): a molar-volume column, else the density, else cell / Z."""
     n = rows.n
     rows.volume = np.full(n, np.nan)
@@ -354,7 +359,7 @@ def _volumes(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
                 "volume-based value (add a Z column)", ctx.table.sheet, cell))
 
 
-def _born_exponents(ctx: TableContext, rows: _Rows, flags: list[list[Flag]]) -> None:
+def _born_exponents(ctx: TableContext, rows: _Rows, flags: Rows[list[Flag]]) -> None:
     cat = [a.cation if a is not None else None for a in ctx.ions]
     an = [a.anion if a is not None else None for a in ctx.ions]
     rows.born_n = lm.born_exponent_for_ions(np.array(cat, dtype=object), rows.zc,
@@ -451,8 +456,9 @@ def theory_pass(ctx: TableContext) -> None:
     n = len(ctx.rows)
     if n == 0 or not any(a is not None for a in ctx.ions):
         return
-    flags: list[list[Flag]] = [[] for _ in range(n)]
-    missing: list[set[str]] = [set() for _ in range(n)]
+    # per row, made when a row first gets one (most rows get none)
+    flags: Rows[list[Flag]] = defaultdict(list)
+    missing: Rows[set[str]] = defaultdict(set)
     rows = _ions_and_structures(ctx, flags)
     molar_mass = _molar_mass(ctx)
 
@@ -500,7 +506,7 @@ def theory_pass(ctx: TableContext) -> None:
     for i in np.nonzero(ok)[0].tolist():
         rr = ctx.rows[i]
         fcell = _cell(ctx, i, fcol) if fcol is not None else None
-        for label in sorted(missing[i]):
+        for label in sorted(missing.get(i, ())):
             flags[i].append(Flag(
                 "radius-unknown", Severity.NOTE,
                 f"no ionic radius for {label} in Shannon's table and no radius column value: "
@@ -520,7 +526,7 @@ def theory_pass(ctx: TableContext) -> None:
                 f"{ctx.settings.model_spread:g} %; check the radii, structure and volume used "
                 "(the volume-based fit is known to be poor for 2:2 oxides)",
                 ctx.table.sheet, fcell))
-        rr.flags.extend(flags[i])
+        rr.flags.extend(flags.get(i, ()))
 
 
 def _comparison_models(models: dict[str, FloatArray], diffs: dict[str, FloatArray]
@@ -561,7 +567,7 @@ def _difference_words(name: str, cycle: FloatArray, models: dict[str, FloatArray
 
 def _compare(ctx: TableContext, rows: _Rows, i: int, models: dict[str, FloatArray],
              corr: FloatArray, cycle: FloatArray, fcell: str | None,
-             flags: list[list[Flag]],
+             flags: Rows[list[Flag]],
              pick: Sequence[tuple[str | None, float, bool]]) -> None:
     """The covalent-character flag of one row whose cycle value is known."""
     chosen, d, alone = pick[i]
