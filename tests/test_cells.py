@@ -514,3 +514,18 @@ def test_large_sheet_matches_calamine(tmp_path: Path) -> None:
             ws.write_number(r, c, math.sin(r * c) * 1000)
     wb.close()
     assert trimmed(read_cells(path).sheets[0].rows) == calamine_grid(path)
+
+
+def test_repeated_inline_strings_read_once_and_escapes_decoded(tmp_path: Path) -> None:
+    # ECMA-376 Part 1, 18.3.1.4 (c t="inlineStr"), 22.9.2.19 (ST_Xstring: _xHHHH_ escapes)
+    rows_xml = "".join(
+        f'<row r="{r}"><c r="A{r}" t="inlineStr"><is><t>K&amp;Br</t></is></c>'
+        f'<c r="B{r}" t="inlineStr"><is><t>a_x0009_b</t></is></c>'
+        f'<c r="C{r}" t="inlineStr"><is><t>row {r}</t></is></c></row>'
+        for r in range(1, 6)
+    )
+    path = build_package(tmp_path / "i.xlsx", [("S", rows_xml)])
+    rows = read_cells(path).sheets[0].rows
+    assert [r[:2] for r in rows] == [["K&Br", "a\tb"]] * 5
+    assert [r[2] for r in rows] == [f"row {r}" for r in range(1, 6)]
+    assert rows[0][0] is rows[4][0]  # one text for the column's repeats

@@ -640,6 +640,7 @@ class _Scanner:
         self.row_attrs: bytes | None = None  # attributes of a <row> not yet applied
         self.cells_left = Limits().max_cells  # grid cells (blanks filled in included)
         self.max_cells = self.cells_left
+        self.inline: dict[bytes, str] = {}  # inline string XML -> its text
 
     def _grow(self, row: int, col: int) -> None:
         """Add blank rows up to 0-based ``row`` (which must be on a worksheet)."""
@@ -764,6 +765,15 @@ class _Scanner:
         self, attrs: bytes, v: bytes, istr: bytes, inner: bytes, letters: bytes, digits: bytes
     ) -> object:
         """The value of one cell that is not a plain number."""
+        if istr and not v:
+            # an inline string: a column of them repeats a few texts, kept once each
+            got = self.inline.get(istr)
+            if got is None:
+                value = istr.decode("utf-8")
+                got = _unx(_unescape(value)) if "&" in value or "_x" in value else value
+                if len(self.inline) < 65536:
+                    self.inline[istr] = got
+            return got
         row = int(digits) - 1
         col = self._colnum(letters)
         if v:
@@ -775,9 +785,6 @@ class _Scanner:
                 return self.sst[int(v)]
             except (ValueError, IndexError) as exc:
                 raise self._bad_value(exc, row, col) from exc
-        if istr:
-            value = istr.decode("utf-8")
-            return _unx(_unescape(value)) if "&" in value or "_x" in value else value
         if inner:
             return self._slow(row, col, attrs, inner)
         return None
