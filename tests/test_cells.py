@@ -529,3 +529,18 @@ def test_repeated_inline_strings_read_once_and_escapes_decoded(tmp_path: Path) -
     assert [r[:2] for r in rows] == [["K&Br", "a\tb"]] * 5
     assert [r[2] for r in rows] == [f"row {r}" for r in range(1, 6)]
     assert rows[0][0] is rows[4][0]  # one text for the column's repeats
+
+
+def test_rows_with_gaps_out_of_order_and_styled_blanks(tmp_path: Path) -> None:
+    # ECMA-376 Part 1, 18.3.1.4: a cell's place is its r reference; a <c> without <v> is
+    # blank (a format only). Cells out of order are legal XML the reader must still place.
+    data = (
+        '<row r="1"><c r="A1"><v>1</v></c><c r="C1"><v>3</v></c><c r="F1"><v>6</v></c></row>'
+        '<row r="2"><c r="B2" s="1"/><c r="D2"><v>4</v></c><c r="E2" s="2"/></row>'
+        '<row r="3"><c r="C3"><v>3</v></c><c r="A3"><v>1</v></c></row>'
+    )
+    path = build_package(tmp_path / "g.xlsx", [("S", data)])
+    rows = read_cells(path).sheets[0].rows
+    assert rows[0] == [1.0, None, 3.0, None, None, 6.0]
+    assert rows[1] == [None, None, None, 4.0]  # trailing styled blank left out
+    assert rows[2] == [1.0, None, 3.0]

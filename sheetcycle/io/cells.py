@@ -734,6 +734,15 @@ class _Scanner:
                 while values and values[-1] is None:
                     values.pop()
                 rows[row] = values
+            elif not rows[row] and (where := self._gapped(cells)) is not None:
+                # a new row with blank columns between its cells, in order: one list
+                rowlist = [None] * (where[-1] + 1)
+                self._spend(len(rowlist) - len(cells))
+                for c, value in zip(where, values, strict=True):
+                    rowlist[c] = value
+                while rowlist and rowlist[-1] is None:
+                    rowlist.pop()
+                rows[row] = rowlist
             else:
                 rowlist = rows[row]
                 for c, value in zip([self._colnum(x[0]) for x in cells], values, strict=True):
@@ -751,6 +760,20 @@ class _Scanner:
             self.row, self.col, self.digits, self.row_attrs = row, -1, first[1], None
         if b"mergeCell" in text:
             merged.extend(m.decode() for m in self.merge_re.findall(text))
+
+    def _gapped(self, cells: list[tuple[bytes, ...]]) -> list[int] | None:
+        """The 0-based columns of a row's cells when they rise strictly (else None)."""
+        cols = self.cols
+        try:
+            where = [cols[x[0]] for x in cells]
+        except KeyError:
+            where = [self._colnum(x[0]) for x in cells]
+        last = -1
+        for c in where:
+            if c <= last:
+                return None
+            last = c
+        return where
 
     def _colnum(self, letters: bytes) -> int:
         c = self.cols.get(letters)
