@@ -211,3 +211,30 @@ def test_shared_texts_are_one_copy_and_forgotten_between_runs() -> None:
     forget_shared()
     assert not _SHARED
     assert share(b) is b  # a fresh registry keeps the first copy it sees
+
+
+def test_formulas_by_signature_equal_the_row_by_row_plan(monkeypatch: pytest.MonkeyPatch
+                                                         ) -> None:
+    # the demo workbook (invented data) has rows of many cycle shapes, missing terms,
+    # derived terms and flags; both ways of planning must give the same cells and checks
+    from sheetcycle.api import _read_tables
+    from sheetcycle.io import annotated
+    from sheetcycle.pipeline import Settings, run_tables
+
+    demo = Path(__file__).resolve().parent.parent / "workbooks" / "demo_salts.xlsx"
+    settings = Settings()
+    found = _read_tables(demo, settings.column_overrides, settings.limits)
+    run = run_tables(demo, found.tables, settings, list(found.flags))
+
+    def planned() -> tuple[list[list[object]], list[tuple[str, str, str, float]]]:
+        plan = annotated.plan_annotations(run, found.book)
+        cells = [[col.cells[i] for i in range(len(col.cells))]
+                 for add in plan.additions for col in add.columns]
+        return cells, sorted(plan.all_formulas())
+
+    by_code = planned()
+    assert annotated._signature_codes is not None
+    monkeypatch.setattr(annotated, "_signature_codes", lambda rows: None)
+    by_row = planned()
+    assert by_code[1], "the demo emitted no formulas"
+    assert by_code == by_row

@@ -303,6 +303,7 @@ def _table_columns(
     for n in extra:
         layout.append((n, "value"))
     col_of = {key: start + j for j, key in enumerate(layout)}
+    codes = _signature_codes(rows)
     columns: list[AddedColumn] = []
     templates: dict[tuple[Any, ...], str | None] = {}  # (value, trace signature) -> formula
     for key in layout:
@@ -312,7 +313,7 @@ def _table_columns(
         formulas: Sequence[str | None] | None = None
         if part == "value":
             formulas = _formulas_of(name, table, rows, numbers, col_of[key], col_of, refs,
-                                    templates, plan)
+                                    templates, plan, codes)
         heading = VALUE_HEADINGS.get(name) or _heading_of(name, unit)
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
@@ -350,12 +351,16 @@ def _formulas_of(
     refs: Callable[[str, str, int], str],
     templates: dict[tuple[Any, ...], str | None],
     plan: AnnotationPlan,
+    codes: np.ndarray | None = None,
 ) -> Sequence[str | None] | None:
     """The formulas of one value column (None: it has none), and their checks in the plan.
 
     Rows with a signature share a template (:class:`RowFormulas` keeps an index per row,
     the plan a :class:`FormulaColumn` per template); a row whose trace has none gets a
     formula of its own."""
+    if codes is not None:
+        return _formulas_by_code(name, table, rows, numbers, col, col_of, refs, templates,
+                                 plan, codes)
     letters = a1(0, col)[:-1]
     texts: list[str] = []
     shared: dict[str, int] = {}  # template -> its index in texts and plan.formula_columns
@@ -393,6 +398,76 @@ def _formulas_of(
         return listed
     if not texts:
         return None
+    return RowFormulas(texts, which, table.first_row, ROW_MARK)
+
+
+def _signature_codes(rows: Sequence[RowResult | None]) -> np.ndarray | None:
+    """Each row's trace signature code (-1: no trace), when every traced row is a view of
+    one table's trace at its own index (the engine's rows); else None."""
+    table_trace = None
+    codes = np.full(len(rows), -1, dtype=np.int64)
+    traced = []
+    for i, r in enumerate(rows):
+        if r is None or not r.trace:
+            continue
+        t = getattr(r.trace, "_t", None)
+        if t is None or getattr(r.trace, "_i", None) != i:
+            return None
+        if table_trace is None:
+            table_trace = t
+        elif t is not table_trace:
+            return None
+        traced.append(i)
+    if table_trace is None:
+        return codes
+    table_trace.signature(0)  # works the codes out for the whole table
+    every = np.asarray(table_trace._codes, dtype=np.int64)
+    if every.size != len(rows):
+        return None
+    codes[traced] = every[traced]
+    return codes
+
+
+def _formulas_by_code(
+    name: str,
+    table: Table,
+    rows: Sequence[RowResult | None],
+    numbers: np.ndarray,
+    col: int,
+    col_of: Mapping[tuple[str, str], int],
+    refs: Callable[[str, str, int], str],
+    templates: dict[tuple[Any, ...], str | None],
+    plan: AnnotationPlan,
+    codes: np.ndarray,
+) -> Sequence[str | None] | None:
+    """:func:`_formulas_of` a signature at a time: one template per distinct code, made
+    from its first row, and the rows that share it found on arrays."""
+    idx = np.flatnonzero(np.isfinite(numbers) & (codes >= 0))
+    if not idx.size:
+        return None
+    uniq, first = np.unique(codes[idx], return_index=True)
+    texts: list[str] = []
+    by_text: dict[str, int] = {}
+    lut = np.full(int(uniq.max()) + 1, -1, dtype=np.int32)
+    for j in np.argsort(first, kind="stable").tolist():  # in the order rows meet them
+        row = rows[int(idx[first[j]])]
+        assert row is not None
+        template = _row_template(name, row, col_of, refs, templates)
+        if not template:
+            continue
+        k = by_text.get(template)
+        if k is None:
+            k = by_text[template] = len(texts)
+            texts.append(template)
+        lut[int(uniq[j])] = k
+    if not texts:
+        return None
+    which = np.full(len(rows), -1, dtype=np.int32)
+    which[idx] = lut[codes[idx]]
+    for k, text in enumerate(texts):
+        sel = np.flatnonzero(which == k)
+        plan.formula_columns.append(FormulaColumn(
+            table.sheet, col, text, (sel + table.first_row).tolist(), numbers[sel].tolist()))
     return RowFormulas(texts, which, table.first_row, ROW_MARK)
 
 
