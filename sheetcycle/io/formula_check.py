@@ -139,6 +139,14 @@ class FormulaColumn:
     rows: list[int] = field(default_factory=list)
     expected: list[float] = field(default_factory=list)
 
+    def cell(self, n: int) -> tuple[str, str, str, float]:
+        """(sheet, A1 cell, formula, expected) of the n-th cell."""
+        from sheetcycle.io.tables import a1
+
+        row = self.rows[n]
+        return (self.sheet, f"{a1(0, self.col)[:-1]}{row}",
+                self.template.replace(ROW_MARK, str(row)), self.expected[n])
+
     def cells(self) -> Iterator[tuple[str, str, str, float]]:
         """(sheet, A1 cell, formula, expected) of every cell, as :func:`check_formulas`
         takes them."""
@@ -234,18 +242,27 @@ def check_formula_columns(
     order = _column_order(columns, points_at)
     if order is None:  # columns that point at each other: the evaluator's own ordering
         return [], [cell for column in columns for cell in column.cells()]
-    computed: dict[tuple[str, int], dict[int, object]] = {}
+    # each checked column's values by 0-based row, NaN where this check left a cell open
+    extent: dict[tuple[str, int], int] = {}
+    for column in columns:
+        key = (column.sheet, column.col)
+        extent[key] = max(extent.get(key, 0), max(column.rows, default=0))
+    computed = {key: np.full(size, np.nan) for key, size in extent.items()}
+
+    def read(values: np.ndarray, at: np.ndarray) -> np.ndarray:
+        inside = (at >= 0) & (at < values.size)
+        return np.where(inside, values[np.where(inside, at, 0)], np.nan)
+
     for k in order:
         column = columns[k]
-        results = computed.setdefault((column.sheet, column.col), {})
+        results = computed[(column.sheet, column.col)]
         plan = plans[k]
-        cells = list(column.cells())
         arith = None if plan is None else _arithmetic_order(plan[0])
         if plan is None or arith is None:
-            one_by_one.extend(cells)
+            one_by_one.extend(column.cells())
             continue
         shape, refs = plan
-        rows0 = [row - 1 for row in column.rows]
+        rows0 = np.asarray(column.rows, dtype=np.int64) - 1
         raw = []
         unchecked = np.zeros(len(rows0), dtype=bool)  # reads a cell this check left open
         for j in arith:
@@ -254,26 +271,23 @@ def check_formula_columns(
             grid = glist[s]
             if mine is None:
                 raw.append([_get(grid, fixed, c)] * len(rows0) if offset is None
-                           else [_get(grid, r + offset, c) for r in rows0])
+                           else [_get(grid, r + offset, c) for r in rows0.tolist()])
                 continue
-            got_here = ([mine.get(fixed)] * len(rows0) if offset is None
-                        else [mine.get(r + offset) for r in rows0])
-            unchecked |= np.array([v is None for v in got_here], dtype=bool)
-            raw.append([0.0 if v is None else v for v in got_here])
+            got_here = read(mine, np.full(len(rows0), fixed) if offset is None
+                            else rows0 + offset)
+            unchecked |= np.isnan(got_here)
+            raw.append(np.nan_to_num(got_here, nan=0.0).tolist())
         got = _arithmetic(shape, arith, raw, np, len(rows0))
         if got is None:
-            one_by_one.extend(cells)
+            one_by_one.extend(column.cells())
             continue
         expected = np.asarray(column.expected, dtype=float)
         finite = np.isfinite(got) & ~unchecked
         bad = finite & ~(np.abs(got - expected) <= rel * np.maximum(np.abs(expected), 1.0))
         for n in np.flatnonzero(bad).tolist():
-            sheet, cell, formula, value = cells[n]
+            sheet, cell, formula, value = column.cell(n)
             problems.append((sheet, cell, formula, value, float(got[n])))
         for n in np.flatnonzero(~finite).tolist():
-            one_by_one.append(cells[n])
-        values = got.tolist()
-        for n, r in enumerate(rows0):
-            if finite[n]:
-                results[r] = values[n]
+            one_by_one.append(column.cell(n))
+        results[rows0[finite]] = got[finite]
     return problems, one_by_one

@@ -36,7 +36,7 @@ from sheetcycle.io.package_xml import (
 
 __all__ = ["ColumnJob", "SheetJob", "SheetRewriter", "find_cell_styles", "scan_tail"]
 
-CHUNK = 4 * 1024 * 1024
+CHUNK = 1024 * 1024
 _FAST_ROWS = 4096  # block rows whose added cells are made at once, a column at a time
 _HUGE = 1.7976931348623157e308  # largest finite double
 _INF = 1 << 62

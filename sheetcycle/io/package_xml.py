@@ -12,6 +12,7 @@ from __future__ import annotations
 import posixpath
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 
 from lxml import etree
 
@@ -97,6 +98,7 @@ def _ooxml_escape(text: str) -> str:
 _NEEDS_ESCAPE = re.compile("[&<>_\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 
 
+@lru_cache(maxsize=4096)  # the same flag words go in a note, a flags cell and a sheet row
 def esc_text(text: str) -> str:
     """Text content for a <t> or <v> element."""
     if _NEEDS_ESCAPE.search(text) is None:
