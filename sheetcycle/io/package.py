@@ -732,9 +732,15 @@ class _Out:
             data = data()
         if not isinstance(data, bytes):  # its chunks, streamed
             info._compresslevel = 1  # type: ignore[attr-defined]
-            with self.zout.open(info, "w", force_zip64=True) as dst:
-                for chunk in data:
-                    dst.write(chunk)
+            # no Zip64 records unless needed: some spreadsheet applications want to repair
+            # a workbook whose small parts carry them; a new part beyond 2 GiB stops here
+            try:
+                with self.zout.open(info, "w", force_zip64=False) as dst:
+                    for chunk in data:
+                        dst.write(chunk)
+            except RuntimeError as exc:
+                raise WriteError(f"the new part {name} would exceed 2 GiB; nothing was "
+                                 "written") from exc
             return
         if len(data) > 1024 * 1024:  # big parts (flags sheet, notes): fast deflate (level 1)
             info._compresslevel = 1  # type: ignore[attr-defined]
