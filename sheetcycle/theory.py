@@ -123,16 +123,16 @@ class _Rows:
     structure_src: list[str]
     r_kap: tuple[FloatArray, FloatArray] = field(
         default_factory=lambda: (np.empty(0), np.empty(0)))
-    r_kap_src: list[list[str]] = field(default_factory=list)
+    r_kap_src: list[Sequence[str]] = field(default_factory=list)
     r0: FloatArray = field(default_factory=lambda: np.empty(0))
     r0_how: list[str] = field(default_factory=list)
-    r0_src: list[list[str]] = field(default_factory=list)
+    r0_src: list[Sequence[str]] = field(default_factory=list)
     born_n: FloatArray = field(default_factory=lambda: np.empty(0))
     volume: FloatArray = field(default_factory=lambda: np.empty(0))
     ionic_strength: FloatArray = field(default_factory=lambda: np.empty(0))
     charge_type: npt.NDArray[np.object_] = field(default_factory=lambda: np.empty(0, object))
     volume_how: list[str] = field(default_factory=list)
-    volume_src: list[list[str]] = field(default_factory=list)
+    volume_src: list[Sequence[str]] = field(default_factory=list)
 
 
 def _cell(ctx: TableContext, i: int, col: Column) -> str:
@@ -206,12 +206,12 @@ def _ions_and_structures(ctx: TableContext, flags: Rows[list[Flag]]) -> _Rows:
 
 
 def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | None],
-           missing: Rows[set[str]]) -> tuple[FloatArray, FloatArray, list[list[str]]]:
+           missing: Rows[set[str]]) -> tuple[FloatArray, FloatArray, list[Sequence[str]]]:
     """Radii (pm) per row: the row's radius columns, else Shannon at the given coordination."""
     ccol, cvals = _column_values(ctx, "radius_cation")
     acol, avals = _column_values(ctx, "radius_anion")
     rc, ra = np.full(rows.n, np.nan), np.full(rows.n, np.nan)
-    srcs: list[list[str]] = [()] * rows.n  # type: ignore[list-item]  # (none yet: shared)
+    srcs: list[Sequence[str]] = [()] * rows.n  # none yet: one shared empty tuple
     for i, ions in enumerate(ctx.ions):
         cn = cn_of[i]
         if ions is None or cn is None:
@@ -232,7 +232,7 @@ def _radii(ctx: TableContext, rows: _Rows, cn_of: Sequence[tuple[int, int] | Non
             out[i] = found[0]
             mine.append(found[1])
         if mine:
-            srcs[i] = share(tuple(mine))  # type: ignore[call-overload]  # one per salt
+            srcs[i] = share(tuple(mine))  # one copy per salt
     return rc, ra, srcs
 
 
@@ -270,7 +270,7 @@ def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
     n = rows.n
     rows.r0 = np.full(n, np.nan)
     rows.r0_how = [""] * n
-    rows.r0_src = [()] * n  # type: ignore[list-item]  # (no sources: one shared tuple)
+    rows.r0_src = [()] * n  # no sources yet: one shared empty tuple
     dcol, dvals = _column_values(ctx, "interionic_distance")
     rhocol, rho = _column_values(ctx, "density")
     ccol, cvals = _column_values(ctx, "radius_cation")
@@ -302,7 +302,7 @@ def _distances(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
             rows.r0[i] = measured[0]
             rows.r0_how[i] = ("measured, from the built-in table of room-temperature "
                               "lattice constants")
-            rows.r0_src[i] = share((measured[1],))  # type: ignore[assignment]
+            rows.r0_src[i] = share((measured[1],))
         elif np.isfinite(from_radii[i]):
             rows.r0[i] = from_radii[i]
             rows.r0_how[i] = "estimated as r+ + r−"
@@ -326,7 +326,7 @@ def _volumes(ctx: TableContext, rows: _Rows, molar_mass: FloatArray,
     n = rows.n
     rows.volume = np.full(n, np.nan)
     rows.volume_how = [""] * n
-    rows.volume_src = [()] * n  # type: ignore[list-item]
+    rows.volume_src = [()] * n
     vcol, vm = _column_values(ctx, "molar_volume")
     rhocol, rho = _column_values(ctx, "density")
     ccol, vcell = _column_values(ctx, "cell_volume")
