@@ -448,6 +448,10 @@ class _TableTrace:
     def signature(self, i: int) -> int:
         """What a row's formulas depend on, with the row number left out, as a small code:
         rows with equal codes have the same formulas but for their own row numbers."""
+        return self.codes()[i]
+
+    def codes(self) -> list[int]:
+        """Every row's :meth:`signature` code, in row order."""
         if self._codes is None:
             n = self.coefficients.shape[0]
             parts = [np.unique(c, return_inverse=True)[1].reshape(n)
@@ -463,7 +467,7 @@ class _TableTrace:
                 code = np.unique(code * (int(part.max(initial=0)) + 1) + part,
                                  return_inverse=True)[1].reshape(n)
             self._codes = code.tolist()
-        return self._codes[i]
+        return self._codes
 
 
 def at_row(expr: str | None, row: int) -> str | None:

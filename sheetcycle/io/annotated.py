@@ -420,8 +420,7 @@ def _signature_codes(rows: Sequence[RowResult | None]) -> np.ndarray | None:
         traced.append(i)
     if table_trace is None:
         return codes
-    table_trace.signature(0)  # works the codes out for the whole table
-    every = np.asarray(table_trace._codes, dtype=np.int64)
+    every = np.asarray(table_trace.codes(), dtype=np.int64)
     if every.size != len(rows):
         return None
     codes[traced] = every[traced]
