@@ -672,15 +672,23 @@ def _flags_sheet(run: RunResult) -> NewSheet:
     ]
     links: dict[tuple[int, int], str] = {}
     flags = [f for r in run.rows for f in r.flags] + list(run.file_flags)
+    made: dict[tuple[str, str | None], AddedCell] = {}  # cells are immutable: one per text
+
+    def cell(text: str, style: str | None = None) -> AddedCell:
+        got = made.get((text, style))
+        if got is None:
+            got = made[(text, style)] = t(text, style=style)
+        return got
+
     for f in flags:
         r0 = len(rows)
         rows.append(
             [
-                t(f.sheet or ""),
+                cell(f.sheet or ""),
                 t(f.cell or ""),
-                t(f.code),
-                t(f.severity.value, style=f.severity.value),
-                t(f.message),
+                cell(f.code),
+                cell(f.severity.value, f.severity.value),
+                cell(f.message),
             ]
         )
         if f.sheet and f.cell:
