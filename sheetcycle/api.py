@@ -165,10 +165,12 @@ def annotate(
     if output is not None:
         own = Path(path).suffix.lower() in (".xlsx", ".xlsm") and not results_book
         if own:
-            from sheetcycle.io.annotated import write_annotated_copy
+            from sheetcycle.io.annotated import prepare_annotated_copy, write_planned_copy
 
             assert found.book is not None
-            write_annotated_copy(run, found.book, Path(path), Path(output), force=force)
+            plan = prepare_annotated_copy(run, found.book)
+            found.book = None  # the read cells are not needed to write: let them go first
+            write_planned_copy(plan, Path(path), Path(output), force=force)
         else:
             write_results_workbook(run, Path(output), force=force)
     if json_path is not None:

@@ -57,7 +57,9 @@ __all__ = [
     "METHOD_SHEET",
     "AnnotationPlan",
     "plan_annotations",
+    "prepare_annotated_copy",
     "write_annotated_copy",
+    "write_planned_copy",
 ]
 
 METHOD_SHEET = "sheetcycle method"
@@ -706,8 +708,26 @@ def write_annotated_copy(
     verify: Callable[[AnnotationPlan, WorkbookCells], None] | None = None,
 ) -> AnnotationPlan:
     """Plan, verify every formula, and write the annotated copy (all or nothing)."""
+    plan = prepare_annotated_copy(run, book, verify=verify)
+    write_planned_copy(plan, src, dst, force=force)
+    return plan
+
+
+def prepare_annotated_copy(
+    run: RunResult,
+    book: WorkbookCells,
+    *,
+    verify: Callable[[AnnotationPlan, WorkbookCells], None] | None = None,
+) -> AnnotationPlan:
+    """Plan the additions and verify every formula; the read cells are not needed after."""
     plan = plan_annotations(run, book)
     (verify or verify_formulas)(plan, book)
+    return plan
+
+
+def write_planned_copy(plan: AnnotationPlan, src: Path, dst: Path, *,
+                       force: bool = False) -> None:
+    """Write the annotated copy that ``plan`` (verified) describes (all or nothing)."""
     write_annotated(
         src,
         dst,
@@ -717,7 +737,6 @@ def write_annotated_copy(
         cell_values=plan.cell_values,  # issue 5: worksheet-function cells
         force=force,
     )
-    return plan
 
 
 def verify_formulas(plan: AnnotationPlan, book: WorkbookCells, *, rel: float = 1e-9) -> None:
