@@ -640,12 +640,13 @@ def _arithmetic_order(shape: str) -> list[int] | None:
     return sorted({int(k) for k in _PLACEHOLDER.findall(shape)})
 
 
-def _arithmetic(shape: str, order: list[int], raw: list[list[object]], np: Any,
+def _arithmetic(shape: str, order: list[int], raw: Sequence[Any], np: Any,
                 n: int) -> Any:
     """Whole-column float evaluation of a shape made only of + - * /, ABS and parentheses.
 
     A fast path for the commonest formulas, taken only when every input is a number or
-    blank (blank counts as 0, as in a spreadsheet). Returns a float array, with inf/NaN
+    blank (blank counts as 0, as in a spreadsheet); an input may also be a float array
+    already (the column check's own results). Returns a float array, with inf/NaN
     where the spreadsheet would give an error (those cells are then re-done by the
     ``formulas`` package), or None when the path does not apply. With only these
     operators, spreadsheet and Python precedence agree (unary minus binds tightest in
@@ -659,6 +660,9 @@ def _arithmetic(shape: str, order: list[int], raw: list[list[object]], np: Any,
     body = _ABS.sub("abs(", body)
     arrays: dict[str, Any] = {}
     for k, values in zip(order, raw, strict=True):
+        if isinstance(values, np.ndarray) and values.dtype == float:  # numbers already
+            arrays[f"X{k}"] = values
+            continue
         for v in values:
             if v is not None and type(v) is not float:
                 return None

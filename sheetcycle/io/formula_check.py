@@ -276,7 +276,7 @@ def check_formula_columns(
             got_here = read(mine, np.full(len(rows0), fixed) if offset is None
                             else rows0 + offset)
             unchecked |= np.isnan(got_here)
-            raw.append(np.nan_to_num(got_here, nan=0.0).tolist())
+            raw.append(np.nan_to_num(got_here, nan=0.0))  # an array: no cell objects
         got = _arithmetic(shape, arith, raw, np, len(rows0))
         if got is None:
             one_by_one.extend(column.cells())
