@@ -38,8 +38,8 @@ from sheetcycle.io.package import (
     SheetAddition,
     write_annotated,
 )
-from sheetcycle.io.package_cells import RowFormulas
 from sheetcycle.io.formula_check import FormulaColumn
+from sheetcycle.io.package_cells import RowFormulas
 from sheetcycle.io.tables import a1
 from sheetcycle.model import (
     ROW_MARK,
@@ -269,8 +269,8 @@ def _value_columns(
             values, sigmas, present, unit = col
             if not present.any():
                 continue
-            out[name] = (np.where(present, values, np.nan).astype(float),
-                         np.where(present, sigmas, np.nan).astype(float), unit)
+            out[name] = (np.where(present, values, np.nan),
+                         np.where(present, sigmas, np.nan), unit)
     for i, r in enumerate(rows):
         if r is None:
             continue
@@ -308,14 +308,16 @@ def _table_columns(
     codes = _signature_codes(rows)
     columns: list[AddedColumn] = []
     templates: dict[tuple[Any, ...], str | None] = {}  # (value, trace signature) -> formula
+    job = _FormulaJob(table, rows, col_of, refs, templates, plan)
     for key in layout:
         name, part = key
         values, uncertainties, unit = quantities[name]
         numbers = values if part == "value" else uncertainties
         formulas: Sequence[str | None] | None = None
         if part == "value":
-            formulas = _formulas_of(name, table, rows, numbers, col_of[key], col_of, refs,
-                                    templates, plan, codes)
+            formulas = (_formulas_by_code(job, name, numbers, col_of[key], codes)
+                        if codes is not None else
+                        _formulas_of(job, name, numbers, col_of[key]))
         heading = VALUE_HEADINGS.get(name) or _heading_of(name, unit)
         if part == "uncertainty":
             heading = "u(" + heading.split(" / ")[0] + ") / " + heading.split(" / ")[-1]
@@ -343,26 +345,31 @@ def _table_columns(
     )
 
 
+@dataclass
+class _FormulaJob:
+    """What the formulas of one table's value columns are made from."""
+
+    table: Table
+    rows: Sequence[RowResult | None]
+    col_of: Mapping[tuple[str, str], int]  # (value name, part) -> 0-based column
+    refs: Callable[[str, str, int], str]  # reference value -> its cell
+    templates: dict[tuple[Any, ...], str | None]  # (value, trace signature) -> formula
+    plan: AnnotationPlan
+
+    def template(self, name: str, r: RowResult) -> str | None:
+        return _row_template(name, r, self.col_of, self.refs, self.templates)
+
+
 def _formulas_of(
-    name: str,
-    table: Table,
-    rows: Sequence[RowResult | None],
-    numbers: np.ndarray,
-    col: int,
-    col_of: Mapping[tuple[str, str], int],
-    refs: Callable[[str, str, int], str],
-    templates: dict[tuple[Any, ...], str | None],
-    plan: AnnotationPlan,
-    codes: np.ndarray | None = None,
+    job: _FormulaJob, name: str, numbers: np.ndarray, col: int
 ) -> Sequence[str | None] | None:
-    """The formulas of one value column (None: it has none), and their checks in the plan.
+    """The formulas of one value column (None: it has none), and their checks in the plan,
+    row by row.
 
     Rows with a signature share a template (:class:`RowFormulas` keeps an index per row,
     the plan a :class:`FormulaColumn` per template); a row whose trace has none gets a
     formula of its own."""
-    if codes is not None:
-        return _formulas_by_code(name, table, rows, numbers, col, col_of, refs, templates,
-                                 plan, codes)
+    table, rows, plan = job.table, job.rows, job.plan
     letters = a1(0, col)[:-1]
     texts: list[str] = []
     shared: dict[str, int] = {}  # template -> its index in texts and plan.formula_columns
@@ -375,9 +382,9 @@ def _formulas_of(
             continue
         number = float(numbers[i])
         sheet_row = table.first_row + i
-        template = _row_template(name, r, col_of, refs, templates)
+        template = job.template(name, r)
         if template == "":  # no signature: a formula of its own
-            formula = _value_formula(name, r.trace, sheet_row, col_of, refs)
+            formula = _value_formula(name, r.trace, sheet_row, job.col_of, job.refs)
             if formula is not None:
                 own[i] = formula
                 plan.formulas.append((table.sheet, f"{letters}{sheet_row}", formula, number))
@@ -430,19 +437,12 @@ def _signature_codes(rows: Sequence[RowResult | None]) -> np.ndarray | None:
 
 
 def _formulas_by_code(
-    name: str,
-    table: Table,
-    rows: Sequence[RowResult | None],
-    numbers: np.ndarray,
-    col: int,
-    col_of: Mapping[tuple[str, str], int],
-    refs: Callable[[str, str, int], str],
-    templates: dict[tuple[Any, ...], str | None],
-    plan: AnnotationPlan,
-    codes: np.ndarray,
+    job: _FormulaJob, name: str, numbers: np.ndarray, col: int, codes: np.ndarray
 ) -> Sequence[str | None] | None:
-    """:func:`_formulas_of` a signature at a time: one template per distinct code, made
-    from its first row, and the rows that share it found on arrays."""
+    """:func:`_formulas_of` a signature at a time (``codes`` from :func:`_signature_codes`):
+    one template per distinct code, made from its first row, and the rows that share it
+    found on arrays."""
+    table, rows = job.table, job.rows
     idx = np.flatnonzero(np.isfinite(numbers) & (codes >= 0))
     if not idx.size:
         return None
@@ -453,7 +453,7 @@ def _formulas_by_code(
     for j in np.argsort(first, kind="stable").tolist():  # in the order rows meet them
         row = rows[int(idx[first[j]])]
         assert row is not None
-        template = _row_template(name, row, col_of, refs, templates)
+        template = job.template(name, row)
         if not template:
             continue
         k = by_text.get(template)
@@ -467,7 +467,7 @@ def _formulas_by_code(
     which[idx] = lut[codes[idx]]
     for k, text in enumerate(texts):
         sel = np.flatnonzero(which == k)
-        plan.formula_columns.append(FormulaColumn(
+        job.plan.formula_columns.append(FormulaColumn(
             table.sheet, col, text, (sel + table.first_row).tolist(), numbers[sel].tolist()))
     return RowFormulas(texts, which, table.first_row, ROW_MARK)
 
