@@ -43,19 +43,21 @@ def _styler():  # type: ignore[no-untyped-def]
 
 
 def test_a_new_sheet_in_chunks_is_the_sheet_in_one_piece() -> None:
-    from sheetcycle.io.package_cells import AddedCell, new_sheet_chunks, new_sheet_xml
+    from sheetcycle.io.package_cells import AddedCell, new_sheet_chunks
 
     rows = [[AddedCell(f"r{r} & <x>", None, "warning" if r % 3 else None),
              AddedCell(r * 0.5, f"B{r}*2" if r % 2 else None, "number")] for r in range(1, 40)]
     links = {(k, 0): f"'Data'!A{k}" for k in range(0, 39, 5)}
     styler, attrs = _styler()
-    whole = new_sheet_xml(rows, (10, 12), links, styler, attrs)
+    whole = b"".join(new_sheet_chunks(rows, (10, 12), links, styler, attrs,
+                                      rows_per_chunk=10_000))  # one piece
+    assert whole.endswith(b"</worksheet>") and whole.count(b"<row ") == 39
     chunks = list(new_sheet_chunks(rows, (10, 12), links, styler, attrs, rows_per_chunk=7))
     assert len(chunks) == 6 and b"".join(chunks) == whole
 
 
 def test_styles_registered_ahead_are_all_a_new_sheet_asks_for() -> None:
-    from sheetcycle.io.package_cells import AddedCell, new_sheet_xml, register_new_sheet_styles
+    from sheetcycle.io.package_cells import AddedCell, new_sheet_chunks, register_new_sheet_styles
 
     rows = [[AddedCell("a", None, s), AddedCell(1.0, None, s)]
             for s in ("warning", "error", "note", "header", "text", None)]
@@ -64,7 +66,7 @@ def test_styles_registered_ahead_are_all_a_new_sheet_asks_for() -> None:
     register_new_sheet_styles(rows, links, styler, attrs)
     before = sum(len(sec.added) for sec in styler.styles.sections.values())
     assert before > 0
-    new_sheet_xml(rows, (), links, styler, attrs)
+    b"".join(new_sheet_chunks(rows, (), links, styler, attrs))
     assert sum(len(sec.added) for sec in styler.styles.sections.values()) == before
 
 

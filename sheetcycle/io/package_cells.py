@@ -14,7 +14,15 @@ from dataclasses import dataclass
 from sheetcycle.io.package_styles import StyleBook
 from sheetcycle.io.package_xml import col_letters, esc_attr, esc_text
 
-__all__ = ["AddedCell", "CellStyler", "ColumnCells", "RowFormulas", "cell_xml", "new_sheet_xml"]
+__all__ = [
+    "AddedCell",
+    "CellStyler",
+    "ColumnCells",
+    "RowFormulas",
+    "cell_xml",
+    "new_sheet_chunks",
+    "register_new_sheet_styles",
+]
 
 #: Severity -> fill colour '#RRGGBB'.
 FillMap = Mapping[str, str]
@@ -210,22 +218,6 @@ def _is_numeric(value: object, formula: str | None) -> bool:
     return formula is not None or (value is not None and not isinstance(value, str))
 
 
-def new_sheet_xml(
-    rows: Sequence[Sequence[object | None]],
-    col_widths: Sequence[float],
-    links: Mapping[tuple[int, int], str],
-    styler: CellStyler,
-    cell_attrs: Callable[[object], tuple[object, str | None, str | None]],
-    drawing_rid: str | None = None,
-) -> bytes:
-    """A complete worksheet part for a new sheet (no prefix, inline strings).
-
-    ``drawing_rid`` is the id of the sheet's relationship to its drawing part (pictures),
-    written as ``<drawing>`` after the page margins, where the schema puts it.
-    """
-    return b"".join(new_sheet_chunks(rows, col_widths, links, styler, cell_attrs, drawing_rid))
-
-
 def register_new_sheet_styles(
     rows: Sequence[Sequence[object | None]],
     links: Mapping[tuple[int, int], str],
@@ -255,7 +247,12 @@ def new_sheet_chunks(
     drawing_rid: str | None = None,
     rows_per_chunk: int = 4096,
 ) -> Iterator[bytes]:
-    """:func:`new_sheet_xml` a few thousand rows at a time, for streaming into the zip."""
+    """A complete worksheet part for a new sheet (no prefix, inline strings), a few
+    thousand rows at a time, for streaming into the zip.
+
+    ``drawing_rid`` is the id of the sheet's relationship to its drawing part (pictures),
+    written as ``<drawing>`` after the page margins, where the schema puts it.
+    """
     number_xf = 0
     out: list[str] = [
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
