@@ -139,23 +139,24 @@ class FormulaColumn:
     rows: list[int] = field(default_factory=list)
     expected: list[float] = field(default_factory=list)
 
-    def cell(self, n: int) -> tuple[str, str, str, float]:
-        """(sheet, A1 cell, formula, expected) of the n-th cell."""
-        from sheetcycle.io.tables import a1
+    def cell(self, n: int, letters: str | None = None) -> tuple[str, str, str, float]:
+        """(sheet, A1 cell, formula, expected) of the n-th cell, as :func:`check_formulas`
+        takes them (``letters``: the column's, when the caller has them)."""
+        if letters is None:
+            from sheetcycle.io.tables import a1
 
+            letters = a1(0, self.col)[:-1]
         row = self.rows[n]
-        return (self.sheet, f"{a1(0, self.col)[:-1]}{row}",
+        return (self.sheet, f"{letters}{row}",
                 self.template.replace(ROW_MARK, str(row)), self.expected[n])
 
     def cells(self) -> Iterator[tuple[str, str, str, float]]:
-        """(sheet, A1 cell, formula, expected) of every cell, as :func:`check_formulas`
-        takes them."""
+        """:meth:`cell` of every cell, in order."""
         from sheetcycle.io.tables import a1
 
         letters = a1(0, self.col)[:-1]
-        for row, value in zip(self.rows, self.expected, strict=True):
-            yield (self.sheet, f"{letters}{row}",
-                   self.template.replace(ROW_MARK, str(row)), value)
+        for n in range(len(self.rows)):
+            yield self.cell(n, letters)
 
 
 def _column_order(columns: Sequence[FormulaColumn],

@@ -177,11 +177,16 @@ def vml_blocks(n_notes: int, first_block: int) -> list[int]:
     return list(range(first_block, first_block + max(1, math.ceil(n_notes / 1023))))
 
 
+def _shape_ids(blocks: list[int], n_notes: int) -> list[int]:
+    """The note boxes' shape ids: ids 1..1023 of each block of 1024, in order."""
+    return [b * 1024 + k for b in blocks for k in range(1, 1024)][:n_notes]
+
+
 def new_vml_chunks(notes: list[NoteText], first_block: int,
                    per_chunk: int = 4096) -> Iterator[bytes]:
     """A new VML drawing part (see :func:`add_vml`), a few thousand note boxes at a time."""
     blocks = vml_blocks(len(notes), first_block)
-    ids = [b * 1024 + k for b in blocks for k in range(1, 1024)][: len(notes)]
+    ids = _shape_ids(blocks, len(notes))
     yield (
         f'<xml xmlns:v="{_V}" xmlns:o="{_O}" xmlns:x="{_X}">'
         f'<o:shapelayout v:ext="edit"><o:idmap v:ext="edit" data="'
@@ -197,9 +202,9 @@ def new_vml_chunks(notes: list[NoteText], first_block: int,
 def add_vml(vml: bytes | None, notes: list[NoteText], first_block: int) -> tuple[bytes, int]:
     """The VML drawing with a hidden note box per note; returns (part, last block used)."""
     blocks = vml_blocks(len(notes), first_block)
-    ids = [b * 1024 + k for b in blocks for k in range(1, 1024)][: len(notes)]
     if vml is None:
         return b"".join(new_vml_chunks(notes, first_block)), blocks[-1]
+    ids = _shape_ids(blocks, len(notes))
     declared = all(
         re.search(rb"xmlns:" + pfx + rb"\s*=\s*[\"']" + re.escape(uri.encode()), vml)
         for pfx, uri in ((b"v", _V), (b"o", _O), (b"x", _X))
